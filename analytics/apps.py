@@ -1,0 +1,6 @@
+from django.apps import AppConfig
+
+
+class AnalyticsConfig(AppConfig):
+    name = "analytics"
+    verbose_name = "Analysis and advice"

@@ -1,0 +1,7 @@
+"""WSGI entry for gunicorn: ``gunicorn fleetsvc.wsgi``."""
+import os
+
+from django.core.wsgi import get_wsgi_application
+
+os.environ.setdefault("DJANGO_SETTINGS_MODULE", "fleetsvc.settings")
+application = get_wsgi_application()
