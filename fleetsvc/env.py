@@ -134,7 +134,7 @@ def parse_redis_url(name: str) -> str | None:
     if parts.scheme not in {"redis", "rediss"} or not parts.hostname:
         raise ConfigError(f"{name}: expected redis://HOST:PORT/DB, got {raw!r}")
     try:
-        parts.port
+        _ = parts.port
     except ValueError:
         raise ConfigError(f"{name}: port is not a number") from None
     return raw

@@ -1,0 +1,96 @@
+"""Analysis requests, results keyed by their inputs and model version, and advice actions.
+
+A result is keyed by (vehicle, input_key, model_version): ``input_key`` names the latest record
+ids the analysis saw, so a job run twice — or two runs at once — writes one result.
+"""
+from __future__ import annotations
+
+from django.conf import settings
+from django.db import models
+
+from inspections.models import Vehicle
+
+
+class AnalysisRequest(models.Model):
+    """Written in the same transaction as the record that caused it; sent after commit."""
+
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="analysis_requests")
+    reason = models.CharField(max_length=80)
+    created_at = models.DateTimeField(auto_now_add=True)
+    sent_at = models.DateTimeField(null=True, blank=True)
+    done_at = models.DateTimeField(null=True, blank=True)
+    attempts = models.PositiveSmallIntegerField(default=0)
+    last_error = models.TextField(blank=True)
+
+    class Meta:
+        indexes = [models.Index(fields=["done_at", "sent_at"])]
+
+
+class AnalysisResult(models.Model):
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="analysis_results")
+    input_key = models.CharField(max_length=120)
+    model_version = models.CharField(max_length=40)
+    computed_at = models.DateTimeField(auto_now_add=True)
+    payload = models.JSONField()
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["vehicle", "input_key", "model_version"],
+                                    name="one_result_per_inputs"),
+        ]
+        indexes = [models.Index(fields=["vehicle", "-computed_at"])]
+
+
+class AdviceItem(models.Model):
+    """One recommendation of a result, flattened for dashboards (due ordering, filtering)."""
+
+    result = models.ForeignKey(AnalysisResult, on_delete=models.CASCADE, related_name="advice")
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="advice")
+    key = models.CharField(max_length=120, help_text="Stable id of the advice across recomputes.")
+    kind = models.CharField(max_length=40)
+    severity = models.CharField(max_length=20)
+    urgency_rank = models.PositiveSmallIntegerField()
+    what = models.CharField(max_length=300)
+    due_date = models.DateField(null=True, blank=True)
+    due_km = models.PositiveIntegerField(null=True, blank=True)
+    corner = models.CharField(max_length=2, blank=True)
+    defect_category = models.CharField(max_length=10, blank=True)
+    body = models.JSONField(help_text="The full advice: evidence, interval, limit, caution.")
+
+    class Meta:
+        indexes = [models.Index(fields=["vehicle", "urgency_rank"]),
+                   models.Index(fields=["due_date"])]
+        ordering = ["urgency_rank", "due_date", "id"]
+
+
+class AdviceAction(models.Model):
+    """A manager's acknowledgement or scheduling of an advice key; survives recomputes."""
+
+    ACTIONS = [("acknowledged", "acknowledged"), ("scheduled", "scheduled")]
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="advice_actions")
+    key = models.CharField(max_length=120)
+    action = models.CharField(max_length=14, choices=ACTIONS)
+    scheduled_for = models.DateField(null=True, blank=True)
+    note = models.CharField(max_length=300, blank=True)
+    by = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.PROTECT)
+    at = models.DateTimeField(auto_now_add=True)
+
+    class Meta:
+        ordering = ["-at"]
+
+
+class OwnerReport(models.Model):
+    """A PDF of service advice made for an owner, keyed by the result and the paper size."""
+
+    PAPER = [("A4", "A4"), ("Letter", "Letter")]
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="reports")
+    result = models.ForeignKey(AnalysisResult, on_delete=models.CASCADE, related_name="reports")
+    paper = models.CharField(max_length=6, choices=PAPER, default="A4")
+    pdf = models.FileField(upload_to="reports/%Y/%m/")
+    created_at = models.DateTimeField(auto_now_add=True)
+    emailed_at = models.DateTimeField(null=True, blank=True)
+
+    class Meta:
+        constraints = [
+            models.UniqueConstraint(fields=["result", "paper"], name="one_report_per_result_paper"),
+        ]
