@@ -94,3 +94,22 @@ class OwnerReport(models.Model):
         constraints = [
             models.UniqueConstraint(fields=["result", "paper"], name="one_report_per_result_paper"),
         ]
+
+
+class PooledRate(models.Model):
+    """A platform's pooled drift rate for one corner and angle (deg/km), from the fleet recompute."""
+
+    platform = models.ForeignKey("inspections.Platform", on_delete=models.CASCADE,
+                                 related_name="pooled_rates")
+    corner = models.CharField(max_length=2)
+    angle = models.CharField(max_length=10)
+    mean = models.FloatField()
+    mean_se = models.FloatField()
+    tau2 = models.FloatField()
+    vehicles = models.PositiveIntegerField()
+    method = models.CharField(max_length=200)
+    computed_at = models.DateTimeField(auto_now=True)
+
+    class Meta:
+        constraints = [models.UniqueConstraint(fields=["platform", "corner", "angle"],
+                                               name="one_pooled_rate")]

@@ -1,0 +1,416 @@
+"""One vehicle's analysis: drift, wear, compliance under load and advice, from plain data.
+
+Reads a :class:`~analytics.inputs.VehicleData` (no queries here) and calls the pure core.
+Returns a JSON-ready payload (what dashboards, charts and PDFs show) and the core's advice.
+Assumptions used here are stated in ``ASSUMPTIONS`` and carried in every payload.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import asdict
+
+import numpy as np
+import pandas as pd
+
+from analytics.core import advice as adv
+from analytics.core import corner_from_dict, mirror_corner
+from analytics.core.compliance import load_response, stability_verdict
+from analytics.core.condition import (
+    DEFLECTION_ASSUMPTION,
+    FINDING_STIFFNESS_FACTORS,
+    FINDINGS_NOTE,
+    LinkCondition,
+    measured_corner,
+    what_if,
+)
+from analytics.core.drift import (
+    CrossingForecast,
+    daily_distance_rate,
+    days_since,
+    fit_drift,
+    forecast_drift,
+)
+from analytics.core.load_cases import Platform as LoadPlatform
+from analytics.core.load_cases import vehicle_load_cases
+from analytics.core.pooling import shrink_toward
+from analytics.core.wear import (
+    StiffnessCriterion,
+    fit_stiffness_trend,
+    forecast_play,
+    forecast_stiffness_criterion,
+)
+from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
+
+from .inputs import VehicleData
+
+ANGLES = ("toe", "camber")
+HORIZON_KM = 80_000.0
+ASSUMPTIONS = {
+    "toe_repeatability_deg": 0.01,  # common practice, no source: a rig's repeatability
+    "camber_repeatability_deg": 0.02,
+    "play_repeatability_mm": 0.05,
+    "stiffness_relative_sd": 0.05,
+    "forecast_horizon_km": HORIZON_KM,
+    "finding_stiffness_factors": dict(FINDING_STIFFNESS_FACTORS),
+    "finding_note": FINDINGS_NOTE,
+    "deflection_note": DEFLECTION_ASSUMPTION,
+}
+REPEATABILITY = {"toe": 0.01, "camber": 0.02}
+
+
+def _f(x) -> float | None:
+    return None if x is None or (isinstance(x, float) and not math.isfinite(x)) else float(x)
+
+
+def _iso(d: dt.date | None) -> str | None:
+    return d.isoformat() if d else None
+
+
+def _forecast_json(fc: CrossingForecast) -> dict:
+    return {"status": fc.status, "side": fc.side, "early_km": _f(fc.early_km),
+            "likely_km": _f(fc.likely_km), "late_km": _f(fc.late_km),
+            "early_date": _iso(fc.early_date), "likely_date": _iso(fc.likely_date),
+            "late_date": _iso(fc.late_date), "model": fc.model, "notes": list(fc.notes)}
+
+
+def _adjusted_flags(found: pd.DataFrame, adjust_times: list) -> np.ndarray:
+    """For each as-found reading, whether an adjustment happened since the previous one."""
+    times = list(found["measured_at"])
+    flags = np.zeros(len(times), dtype=bool)
+    for i in range(1, len(times)):
+        flags[i] = any(times[i - 1] < t <= times[i] for t in adjust_times)
+    return flags
+
+
+def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: float):
+    r = data.readings
+    out: dict = {}
+    forecasts: list[adv.DriftForecastInput] = []
+    steps: list[adv.ImpactStep] = []
+    if r.empty:
+        return out, forecasts, steps
+    adjust_times = list(r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
+    ev = data.events
+    adjust_times += list(ev.loc[ev["kind"] == "alignment_adjusted", "performed_at"])
+    adjust_times = [t for t in adjust_times if t not in set(r["measured_at"])] + list(
+        r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
+    for corner in ("FL", "FR", "RL", "RR"):
+        rows = r[(r["corner"] == corner) & (r["kind"] == "as_found")].sort_values("measured_at")
+        if len(rows) < 2:
+            continue
+        flags = _adjusted_flags(rows, adjust_times)
+        x_km = rows["odometer_km"].to_numpy(float)
+        for angle in ANGLES:
+            y = rows[f"{angle}_deg"].to_numpy(float)
+            spec = data.specs.get((CORNER_AXLE[corner], angle))
+            fit = fit_drift(x_km, y, adjusted_before=flags, measurement_sd=REPEATABILITY[angle])
+            entry: dict = {"n_used": fit.n_used, "segment_start": fit.segment_start,
+                           "steps": [], "slope_deg_per_10k": None}
+            for st in fit.steps:
+                idx = int(st.start_index)
+                before = y[max(fit.segment_start, idx - 3):idx]
+                after = y[idx:idx + 3]
+                size = float(np.median(after) - np.median(before)) if before.size else 0.0
+                entry["steps"].append({"index": idx, "odometer_km": float(x_km[idx]),
+                                       "on": rows["measured_on"].iloc[idx].isoformat(),
+                                       "direction": int(st.direction), "size_deg": size})
+                steps.append(adv.ImpactStep(
+                    corner=corner, angle=angle, detected_on=rows["measured_on"].iloc[idx],
+                    odometer_km=float(x_km[idx]), size_deg=size))
+            if fit.trend is None:
+                out[f"{corner}.{angle}"] = entry
+                continue
+            trend = fit.trend
+            pooled = data.pooled.get((corner, angle))
+            entry["slope_deg_per_10k"] = trend.slope * 1e4
+            entry["slope_se_deg_per_10k"] = trend.slope_se * 1e4
+            if fit.fit is not None:
+                entry["slope_ci_deg_per_10k"] = [fit.fit.slope_low * 1e4, fit.fit.slope_high * 1e4]
+            if pooled is not None and pooled.vehicles >= 3 and math.isfinite(pooled.tau2):
+                s = shrink_toward(trend.slope, fit.sampling_variance, mean=pooled.mean,
+                                  mean_se=pooled.mean_se, tau2=pooled.tau2)
+                trend = trend.with_slope(s.slope, s.slope_se)
+                entry["shrunk_slope_deg_per_10k"] = s.slope * 1e4
+                entry["weight_on_pooled"] = s.weight_on_pooled
+                entry["pooled_deg_per_10k"] = pooled.mean * 1e4
+            entry["trend"] = {"slope": trend.slope, "slope_se": trend.slope_se,
+                              "x_ref": trend.x_ref, "y_ref": trend.y_ref,
+                              "residual_sd": trend.residual_sd, "n": trend.n}
+            if spec is not None:
+                fc = forecast_drift(trend, current_km=odo, current_date=today,
+                                    km_per_day=km_per_day, lower=spec.lower_deg,
+                                    upper=spec.upper_deg, horizon_km=HORIZON_KM)
+                entry["forecast"] = _forecast_json(fc)
+                entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
+                                 "source": spec.source}
+                forecasts.append(adv.DriftForecastInput(corner=corner, angle=angle, forecast=fc))
+            out[f"{corner}.{angle}"] = entry
+    return out, forecasts, steps
+
+
+def _replaced_flags(checks: pd.DataFrame, events: pd.DataFrame, corner: str, part: str):
+    rep = events[(events["kind"] == "part_replaced") & (events["corner"] == corner)
+                 & (events["part"] == part)]["performed_at"].tolist()
+    times = list(checks["checked_at"])
+    flags = np.zeros(len(times), dtype=bool)
+    for i in range(1, len(times)):
+        flags[i] = any(times[i - 1] < t <= times[i] for t in rep)
+    return flags
+
+
+def _corner_models(data: VehicleData):
+    """New and measured corner per position (FL…RR) from the platform's files and the checks."""
+    new, measured, conditions_used = {}, {}, {}
+    checks = data.checks
+    for pos in ("FL", "FR", "RL", "RR"):
+        geo = data.corners.get(CORNER_AXLE[pos])
+        if geo is None:
+            continue
+        left = corner_from_dict(geo)
+        corner = left if CORNER_SIDE[pos] == "left" else mirror_corner(left)
+        new[pos] = corner
+        conds: dict[str, LinkCondition] = {}
+        latest = checks[checks["corner"] == pos].sort_values("checked_at").groupby("part").tail(1)
+        for _, c in latest.iterrows():
+            part = PARTS_BY_CODE.get(c["part"])
+            if part is None:
+                continue
+            findings = [f for f in c["findings"] if f != "none"]
+            for link in part.links:
+                if link not in corner.link_names:
+                    continue
+                prev = conds.get(link, LinkCondition())
+                if part.kind == "bush" and _f(c["deflection_mm"]) and c["deflection_mm"] > 0:
+                    prev = LinkCondition(test_force_N=float(c["deflection_force_n"]),
+                                         deflection_mm=float(c["deflection_mm"]),
+                                         ball_joint_play_mm=prev.ball_joint_play_mm)
+                elif part.kind == "bush" and findings:
+                    prev = LinkCondition(finding=findings[0],
+                                         ball_joint_play_mm=prev.ball_joint_play_mm)
+                if part.kind == "ball_joint" and _f(c["play_mm"]) is not None:
+                    prev = LinkCondition(prev.test_force_N, prev.deflection_mm, prev.finding,
+                                         float(c["play_mm"]))
+                conds[link] = prev
+        measured[pos] = measured_corner(corner, conds) if conds else corner
+        conditions_used[pos] = {k: asdict(v) for k, v in conds.items()}
+    return new, measured, conditions_used
+
+
+def _load_platform(p) -> LoadPlatform:
+    return LoadPlatform(
+        front_axle_load_N=p.front_axle_load_n, rear_axle_load_N=p.rear_axle_load_n,
+        track_front_mm=p.track_front_mm, track_rear_mm=p.track_rear_mm,
+        wheelbase_mm=p.wheelbase_mm, cg_height_mm=p.cg_height_mm,
+        tyre_radius_mm=p.loaded_tyre_radius_mm, brake_balance_front=p.brake_balance_front,
+        driven_axle="both" if p.driven_axle == "all" else p.driven_axle)
+
+
+def _compliance(data: VehicleData, new, measured):
+    out: dict = {}
+    verdicts: list[adv.ComplianceVerdict] = []
+    if not new:
+        return out, verdicts
+    lp = _load_platform(data.vehicle.platform)
+    for pos, corner_new in new.items():
+        side = CORNER_SIDE[pos]
+        cases = vehicle_load_cases(lp, outer_side=side)
+        wi = what_if(corner_new, measured[pos], cases, position=pos)
+        out[pos] = {"rows": [asdict(r) for r in wi.rows], "stability_new": wi.stability_new,
+                    "stability_measured": wi.stability_measured, "notes": list(wi.notes)}
+        if pos.startswith("R"):
+            fy = abs(float(cases[0].delta_force(pos)[1]))
+            v_new = stability_verdict(corner_new, fy)
+            v_meas = stability_verdict(measured[pos], fy)
+            out[pos]["verdict_new"] = v_new.verdict
+            out[pos]["verdict_measured"] = v_meas.verdict
+            out[pos]["toe_change_new_deg"] = v_new.toe_change_deg
+            out[pos]["toe_change_measured_deg"] = v_meas.toe_change_deg
+            out[pos]["toe_band_measured_deg"] = v_meas.toe_band_deg
+            out[pos]["lateral_force_N"] = fy
+            out[pos]["flips_to_toe_out"] = (v_new.direction == "toe-in"
+                                            and v_meas.direction == "toe-out")
+            verdicts.append(adv.ComplianceVerdict(
+                corner=pos, load_case="cornering", ok=v_meas.verdict != "unstable",
+                text=f"{pos} as outer rear wheel in a turn (0.5 g, default): " + v_meas.note))
+    return out, verdicts
+
+
+def _wear(data: VehicleData, new, km_per_day, today, odo):
+    out: dict = {}
+    forecasts: list[adv.WearForecastInput] = []
+    checks, events = data.checks, data.events
+    if checks.empty:
+        return out, forecasts
+    for (corner, part_code), grp in checks.groupby(["corner", "part"]):
+        part = PARTS_BY_CODE.get(part_code)
+        grp = grp.sort_values("checked_at")
+        if part is None or len(grp) < 2:
+            continue
+        key = f"{corner}.{part_code}"
+        if part.kind == "ball_joint" and grp["play_mm"].notna().sum() >= 2:
+            limit = data.limits.get(part_code)
+            g = grp[grp["play_mm"].notna()]
+            entry = {"part": part.label, "kind": "play", "km": g["odometer_km"].tolist(),
+                     "play_mm": g["play_mm"].tolist(),
+                     "limit_mm": limit.max_play_mm if limit else None,
+                     "limit_source": limit.source if limit else None}
+            if limit is not None and limit.max_play_mm:
+                try:
+                    wf = forecast_play(g["odometer_km"].to_numpy(float), g["play_mm"].to_numpy(float),
+                                       limit_mm=limit.max_play_mm, current_km=odo,
+                                       current_date=today, km_per_day=km_per_day,
+                                       horizon_km=HORIZON_KM,
+                                       replaced_before=_replaced_flags(g, events, corner, part_code),
+                                       measurement_sd_mm=ASSUMPTIONS["play_repeatability_mm"])
+                    entry["forecast"] = _forecast_json(wf.forecast)
+                    forecasts.append(adv.WearForecastInput(corner, part.label, wf.forecast))
+                except ValueError as exc:
+                    entry["note"] = str(exc)
+            out[key] = entry
+        elif part.kind == "bush" and grp["deflection_mm"].notna().sum() >= 2:
+            g = grp[grp["deflection_mm"].notna() & (grp["deflection_mm"] > 0)]
+            k = (g["deflection_force_n"] / g["deflection_mm"]).to_numpy(float)
+            entry = {"part": part.label, "kind": "stiffness", "km": g["odometer_km"].tolist(),
+                     "stiffness_N_per_mm": k.tolist()}
+            corner_new = new.get(corner)
+            link = part.links[0]
+            if corner_new is not None and corner.startswith("R") and len(g) >= 2 \
+                    and link in corner_new.link_names:
+                try:
+                    fit = fit_stiffness_trend(
+                        g["odometer_km"].to_numpy(float), k,
+                        replaced_before=_replaced_flags(g, events, corner, part_code),
+                        relative_sd=ASSUMPTIONS["stiffness_relative_sd"])
+                    toe_fn = _toe_change_of_stiffness(data, corner_new, corner, link)
+                    wf = forecast_stiffness_criterion(
+                        fit, StiffnessCriterion.toe_out(toe_fn), current_km=odo,
+                        current_date=today, km_per_day=km_per_day, horizon_km=HORIZON_KM)
+                    entry["forecast"] = _forecast_json(wf.forecast)
+                    entry["criterion"] = "cornering toe change of the outer rear wheel turns toe-out"
+                    forecasts.append(adv.WearForecastInput(corner, part.label, wf.forecast))
+                except ValueError as exc:
+                    entry["note"] = str(exc)
+            out[key] = entry
+    return out, forecasts
+
+
+def _toe_change_of_stiffness(data: VehicleData, corner_new, pos: str, link: str):
+    """Vectorised k (N/mm) → cornering toe change (deg) of this outer rear wheel.
+
+    Evaluated exactly on a log-spaced grid of the link's stiffness and interpolated in log k.
+    """
+    from analytics.core.corner_file import with_links
+
+    lp = _load_platform(data.vehicle.platform)
+    force = vehicle_load_cases(lp, outer_side=CORNER_SIDE[pos])[0].delta_force(pos)
+    k0 = float(corner_new.stiffness[corner_new.link_index(link)])
+    grid = np.geomspace(k0 * 0.01, k0 * 3.0, 48)
+    toe = np.array([float(load_response(with_links(corner_new, stiffness={link: float(k)}),
+                                        force).toe_change_deg[0]) for k in grid])
+    lg = np.log(grid)
+
+    def fn(k):
+        return np.interp(np.log(np.clip(np.asarray(k, float), grid[0], grid[-1])), lg, toe)
+
+    return fn
+
+
+def _findings(data: VehicleData) -> list[adv.ComponentFinding]:
+    c = data.checks
+    if c.empty:
+        return []
+    latest = c.sort_values("checked_at").groupby(["corner", "part"]).tail(1)
+    out = []
+    for _, row in latest.iterrows():
+        part = PARTS_BY_CODE.get(row["part"])
+        # a part replaced after its latest check is no longer the part that was found worn
+        ev = data.events
+        replaced = not ev[(ev["kind"] == "part_replaced") & (ev["corner"] == row["corner"])
+                          & (ev["part"] == row["part"])
+                          & (ev["performed_at"] > row["checked_at"])].empty
+        if replaced:
+            continue
+        findings = ", ".join(f for f in row["findings"] if f != "none") or "no finding"
+        out.append(adv.ComponentFinding(
+            corner=row["corner"], part=part.label if part else row["part"],
+            category=row["defect_category"] or None,
+            note=f"{findings}; verdict {row['verdict'].replace('_', ' ')}",
+            checked_on=row["checked_on"], odometer_km=float(row["odometer_km"])))
+    return out
+
+
+def _interval(km, months, sources: dict, km_field: str, mo_field: str):
+    if km is None and months is None:
+        return None
+    src = sorted({sources.get(km_field, ""), sources.get(mo_field, "")} - {""})
+    return adv.ManufacturerInterval(km=float(km) if km else None, months=months,
+                                    source=", ".join(src) or "unverified")
+
+
+def analyse(data: VehicleData) -> tuple[dict, list[adv.Advice]]:
+    """The payload and the advice of one vehicle. Pure given ``data``."""
+    v = data.vehicle
+    p = v.platform
+    today = data.today
+    r, c, e = data.readings, data.checks, data.events
+    odo_values = [float(s.max()) for s in (r["odometer_km"], c["odometer_km"], e["odometer_km"])
+                  if not s.empty]
+    odo = max(odo_values) if odo_values else 0.0
+    km_per_day = None
+    sessions = r.drop_duplicates("session_id") if not r.empty else r
+    if len(sessions) >= 2:
+        rate = daily_distance_rate(days_since(list(sessions["measured_on"]), today),
+                                   sessions["odometer_km"].to_numpy(float))
+        km_per_day = rate.km_per_day if rate.km_per_day > 0 else None
+    drift, drift_fc, steps = _drift(data, km_per_day, today, odo)
+    new, measured, conds = _corner_models(data)
+    compliance, verdicts = _compliance(data, new, measured)
+    wear, wear_fc = _wear(data, new, km_per_day, today, odo)
+    last_session = sessions.sort_values("measured_at").iloc[-1] if len(sessions) else None
+    last_check = c.sort_values("checked_at").iloc[-1] if not c.empty else None
+    state = adv.VehicleState(
+        vehicle=f"{v.plate} ({v.vin})", today=today, odometer_km=odo, km_per_day=km_per_day,
+        last_alignment=adv.ServiceMark(last_session["measured_on"],
+                                       float(last_session["odometer_km"]))
+        if last_session is not None else None,
+        last_suspension_inspection=adv.ServiceMark(last_check["checked_on"],
+                                                   float(last_check["odometer_km"]))
+        if last_check is not None else None,
+        alignment_interval=_interval(p.alignment_interval_km, p.alignment_interval_months,
+                                     p.sources or {}, "alignment_interval_km",
+                                     "alignment_interval_months"),
+        suspension_interval=_interval(p.suspension_interval_km, p.suspension_interval_months,
+                                      p.sources or {}, "suspension_interval_km",
+                                      "suspension_interval_months"),
+        drift=tuple(drift_fc), wear=tuple(wear_fc), findings=tuple(_findings(data)),
+        steps=tuple(steps), compliance=tuple(verdicts),
+    )
+    advice = adv.advise(state)
+    payload = {
+        "model_version": adv.MODEL_VERSION,
+        "today": today.isoformat(),
+        "odometer_km": odo,
+        "km_per_day": km_per_day,
+        "drift": drift,
+        "wear": wear,
+        "compliance": compliance,
+        "conditions": conds,
+        "assumptions": ASSUMPTIONS,
+        "advice": [advice_json(a) for a in advice],
+    }
+    return payload, advice
+
+
+def advice_json(a: adv.Advice) -> dict:
+    hs = a.how_sure
+    return {
+        "kind": str(a.kind), "area": a.area, "what": a.what, "corner": a.corner,
+        "due_date": _iso(a.due_date), "due_km": _f(a.due_km),
+        "how_sure": {"earliest_date": _iso(hs.earliest_date), "latest_date": _iso(hs.latest_date),
+                     "earliest_km": _f(hs.earliest_km), "latest_km": _f(hs.latest_km)},
+        "why": list(a.why), "model": a.model, "model_version": a.model_version,
+        "limit": a.limit.describe() if a.limit else None,
+        "limit_date": _iso(a.limit_date), "limit_km": _f(a.limit_km),
+        "severity": a.severity, "defect_category": a.defect_category, "caution": a.caution,
+    }

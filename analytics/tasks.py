@@ -1,0 +1,35 @@
+"""Celery tasks: thin adapters that take ids, call one service and hold the retry policy."""
+from __future__ import annotations
+
+from celery import shared_task
+
+from . import services
+
+RETRY = dict(autoretry_for=(Exception,), retry_backoff=2, retry_backoff_max=120,
+             retry_jitter=True, max_retries=5)
+
+
+@shared_task(name="analytics.tasks.analyse_vehicle", acks_late=True, **RETRY)
+def analyse_vehicle(request_id: int) -> int | None:
+    """Process one analysis request; returns the result id (the same one if run twice)."""
+    return services.request_process(request_id=request_id)
+
+
+@shared_task(name="analytics.tasks.sweep_pending_requests", acks_late=True)
+def sweep_pending_requests() -> int:
+    """Resend requests that were never sent or never finished (e.g. Redis was down)."""
+    return services.requests_sweep()
+
+
+@shared_task(name="analytics.tasks.recompute_fleet", acks_late=True)
+def recompute_fleet() -> int:
+    """Nightly: recompute every vehicle whose inputs or model version changed."""
+    return services.fleet_recompute()
+
+
+@shared_task(name="analytics.tasks.make_owner_report", acks_late=True, **RETRY)
+def make_owner_report(result_id: int, paper: str = "A4", email: bool = True) -> int:
+    """Render (once) the owner PDF for a result and e-mail it to the owner."""
+    from . import reports
+
+    return reports.owner_report_issue(result_id=result_id, paper=paper, email=email)
