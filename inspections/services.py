@@ -19,6 +19,7 @@ from .models import (
     PARTS_BY_CODE,
     AlignmentSession,
     ComponentCheck,
+    ComponentPhoto,
     ServiceEvent,
     Vehicle,
     WheelReading,
@@ -26,6 +27,8 @@ from .models import (
 from .models.catalogue import CORNER_AXLE, FINDING_CODES, VERDICTS
 from .models.records import CAMBER_LIMIT_DEG, CASTER_LIMIT_DEG, SAI_LIMIT_DEG, TOE_LIMIT_DEG
 from .signals import record_submitted
+
+CHECK_TOKEN_NAMESPACE = uuid.UUID("6f1c2d0e-5b7a-4c89-9a53-0d2f1e6b7c41")
 
 READING_RANGES = {
     "toe_deg": TOE_LIMIT_DEG,
@@ -328,3 +331,43 @@ def service_event_record(
         reason=reason, notes=notes, client_token=client_token or uuid.uuid4())
     record_submitted.send(sender=ServiceEvent, record=event, vehicle=vehicle)
     return event
+
+
+def session_with_checks_submit(*, vehicle: Vehicle, technician, session_kwargs: dict,
+                               readings: list, checks: list) -> AlignmentSession:
+    """Store a session with its component checks and their photos, all or nothing.
+
+    A repeated ``client_token`` returns the stored session and stores nothing more; each check's
+    token is the one the tablet sent, else derived from the session's, so a resend of the checks
+    is de-duplicated by ``component_check_submit`` as well.
+    """
+    token = session_kwargs["client_token"]
+    existing = AlignmentSession.objects.filter(client_token=token).first()
+    if existing is not None:
+        return existing
+    try:
+        with transaction.atomic():
+            session = session_submit(vehicle=vehicle, technician=technician,
+                                               readings=readings, **session_kwargs)
+            for i, (check_kwargs, photos, check_token) in enumerate(checks):
+                check_token = check_token or uuid.uuid5(CHECK_TOKEN_NAMESPACE, f"{token}:{i}")
+                if ComponentCheck.objects.filter(client_token=check_token).exists():
+                    continue
+                try:
+                    check = component_check_submit(
+                        vehicle=vehicle, technician=technician, session=session,
+                        checked_at=session.measured_at, odometer_km=session.odometer_km,
+                        odometer_change_reason=session.odometer_change_reason,
+                        client_token=check_token, **check_kwargs)
+                except ValidationError as exc:
+                    raise ValidationError({f"checks[{i}].{k}": v
+                                           for k, v in exc.message_dict.items()}) from None
+                for upload in photos:
+                    ComponentPhoto.objects.create(check_record=check, image=upload)
+    except IntegrityError:
+        # The same submit raced itself (two tabs, a resend): the first one's record stands.
+        existing = AlignmentSession.objects.filter(client_token=token).first()
+        if existing is None:
+            raise
+        return existing
+    return session

@@ -21,7 +21,6 @@ import json
 import uuid
 
 from django.core.exceptions import BadRequest, TooManyFilesSent, ValidationError
-from django.db import IntegrityError, transaction
 from django.http import Http404, JsonResponse
 from django.urls import reverse
 from django.views.decorators.http import require_POST
@@ -35,10 +34,8 @@ from inspections.forms import (
     error_dict,
     validate_photos,
 )
-from inspections.models import AlignmentSession, ComponentCheck, ComponentPhoto, Vehicle
+from inspections.models import AlignmentSession, Vehicle
 from inspections.scoping import can_record, get_visible_or_404
-
-CHECK_TOKEN_NAMESPACE = uuid.UUID("6f1c2d0e-5b7a-4c89-9a53-0d2f1e6b7c41")
 
 
 class Refused(Exception):
@@ -160,45 +157,6 @@ def read_checks(request, data: dict) -> list[tuple[dict, list]]:
     return out
 
 
-def bay_submission_store(*, vehicle: Vehicle, technician, session_kwargs: dict, readings: list,
-                         checks: list) -> AlignmentSession:
-    """Store a session with its component checks and their photos, all or nothing.
-
-    A repeated ``client_token`` returns the stored session and stores nothing more; each check's
-    token is the one the tablet sent, else derived from the session's, so a resend of the checks
-    is de-duplicated by ``component_check_submit`` as well. (Candidate for ``services.py``.)
-    """
-    token = session_kwargs["client_token"]
-    existing = AlignmentSession.objects.filter(client_token=token).first()
-    if existing is not None:
-        return existing
-    try:
-        with transaction.atomic():
-            session = services.session_submit(vehicle=vehicle, technician=technician,
-                                               readings=readings, **session_kwargs)
-            for i, (check_kwargs, photos, check_token) in enumerate(checks):
-                check_token = check_token or uuid.uuid5(CHECK_TOKEN_NAMESPACE, f"{token}:{i}")
-                if ComponentCheck.objects.filter(client_token=check_token).exists():
-                    continue
-                try:
-                    check = services.component_check_submit(
-                        vehicle=vehicle, technician=technician, session=session,
-                        checked_at=session.measured_at, odometer_km=session.odometer_km,
-                        odometer_change_reason=session.odometer_change_reason,
-                        client_token=check_token, **check_kwargs)
-                except ValidationError as exc:
-                    raise Refused(_service_errors(exc, prefix=f"checks[{i}].")) from None
-                for upload in photos:
-                    ComponentPhoto.objects.create(check_record=check, image=upload)
-    except IntegrityError:
-        # The same submit raced itself (two tabs, a resend): the first one's record stands.
-        existing = AlignmentSession.objects.filter(client_token=token).first()
-        if existing is None:
-            raise
-        return existing
-    return session
-
-
 def _ok(session: AlignmentSession) -> JsonResponse:
     return JsonResponse({"ok": True, "session_id": session.pk,
                          "url": reverse("bay_session", args=[session.pk])})
@@ -212,7 +170,7 @@ def session_submit(request, pk: int):
     header, readings = read_session(data, vehicle)
     checks = read_checks(request, data)
     try:
-        session = bay_submission_store(vehicle=vehicle, technician=request.user,
+        session = services.session_with_checks_submit(vehicle=vehicle, technician=request.user,
                                        session_kwargs=header.service_kwargs(), readings=readings,
                                        checks=checks)
     except ValidationError as exc:

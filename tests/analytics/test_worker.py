@@ -30,6 +30,7 @@ def worker():
     env["DATABASE_URL"] = f"postgres:///{db['NAME']}?host={db['HOST'] or '/var/run/postgresql'}"
     env["REDIS_URL"] = settings.REDIS_URL
     env["SECRET_KEY"] = "test-only-key"
+    (ROOT / "var").mkdir(exist_ok=True)
     log = open(ROOT / "var" / "test-worker.log", "w")  # noqa: SIM115 - closed below
     proc = subprocess.Popen(
         [sys.executable, "-m", "celery", "-A", "fleetsvc", "worker", "--pool=solo",
