@@ -39,6 +39,7 @@ lint: $(STAMP)
 	$(BIN)/ruff check .
 
 bench: $(STAMP)
+	$(BIN)/pip install -q -e ".[dev,bench]"
 	$(BIN)/python bench/bench_corner.py
 
 clean:
