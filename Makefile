@@ -21,7 +21,7 @@ venv: $(STAMP)
 ## make demo: SQLite, in-process jobs, demo data, serve on 127.0.0.1:8000
 demo: $(STAMP)
 	DEBUG=1 $(BIN)/python manage.py migrate --noinput
-	DEBUG=1 $(BIN)/python manage.py build_demo --password $(DEMO_PASSWORD)
+	DEBUG=1 $(BIN)/python manage.py build_demo --if-missing --password $(DEMO_PASSWORD)
 	@echo "Serving the demo on http://127.0.0.1:8000/ (Ctrl-C to stop)"
 	DEBUG=1 $(BIN)/python manage.py runserver 127.0.0.1:8000
 

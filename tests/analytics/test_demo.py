@@ -59,3 +59,11 @@ def test_building_the_demo_twice_is_refused_and_reset_rebuilds_it(capsys):
 def test_the_command_prints_the_logins():
     call_command("build_demo", "--password", "pw-x", "--no-analysis")
     assert Vehicle.objects.filter(is_demo=True).count() == 60
+
+
+def test_make_demo_run_twice_keeps_the_existing_demo(capsys):
+    call_command("build_demo", "--password", "pw-x", "--no-analysis")
+    before = Vehicle.objects.count()
+    call_command("build_demo", "--password", "pw-x", "--if-missing")
+    assert Vehicle.objects.count() == before
+    assert "kept" in capsys.readouterr().out

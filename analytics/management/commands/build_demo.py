@@ -14,21 +14,28 @@ class Command(BaseCommand):
                             help=f"password of the demo personas (default {DEFAULT_PASSWORD})")
         parser.add_argument("--seed", type=int, default=2026)
         parser.add_argument("--reset", action="store_true", help="delete demo data first")
+        parser.add_argument("--if-missing", action="store_true",
+                            help="keep existing demo data (and what was recorded on it) if present")
         parser.add_argument("--no-analysis", action="store_true",
                             help="skip the analysis of every vehicle at the end")
 
-    def handle(self, *args, password, seed, reset, no_analysis, **options):
+    def handle(self, *args, password, seed, reset, if_missing, no_analysis, **options):
         from analytics import services
         from analytics.demo import scenario
+        from inspections.models import Workshop
 
         if reset:
             services.demo_delete()
-        try:
-            counts = scenario.build(password=password, seed=seed)
-        except RuntimeError as exc:
-            raise CommandError(str(exc), returncode=2) from None
-        self.stdout.write("Demo data built (invented scenario, labelled demo): " + ", ".join(
-            f"{v} {k}" for k, v in counts.items()))
+        if if_missing and Workshop.objects.filter(is_demo=True).exists():
+            self.stdout.write("Demo data already present; kept as it is (use --reset to rebuild).")
+            no_analysis = True
+        else:
+            try:
+                counts = scenario.build(password=password, seed=seed)
+            except RuntimeError as exc:
+                raise CommandError(str(exc), returncode=2) from None
+            self.stdout.write("Demo data built (invented scenario, labelled demo): " + ", ".join(
+                f"{v} {k}" for k, v in counts.items()))
         if not no_analysis:
             n = services.fleet_recompute()
             self.stdout.write(f"Analysed {n} vehicles.")
