@@ -101,6 +101,7 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
             continue
         flags = _adjusted_flags(rows, adjust_times)
         x_km = rows["odometer_km"].to_numpy(float)
+        x_days = days_since(list(rows["measured_on"]), today)  # ≤ 0, today = 0
         for angle in ANGLES:
             y = rows[f"{angle}_deg"].to_numpy(float)
             spec = data.specs.get((CORNER_AXLE[corner], angle))
@@ -137,10 +138,17 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
             entry["trend"] = {"slope": trend.slope, "slope_se": trend.slope_se,
                               "x_ref": trend.x_ref, "y_ref": trend.y_ref,
                               "residual_sd": trend.residual_sd, "n": trend.n}
+            # The same drift over time: a date forecast that holds when the vehicle stands still.
+            # (the readings the km fit used: current segment, after any step)
+            fit_t = fit_drift(x_days[fit.fit_start:], y[fit.fit_start:],
+                              measurement_sd=REPEATABILITY[angle], find_steps=False)
+            if fit_t.trend is not None:
+                entry["slope_deg_per_year"] = fit_t.trend.slope * 365.25
             if spec is not None:
                 fc = forecast_drift(trend, current_km=odo, current_date=today,
                                     km_per_day=km_per_day, lower=spec.lower_deg,
-                                    upper=spec.upper_deg, horizon_km=HORIZON_KM)
+                                    upper=spec.upper_deg, horizon_km=HORIZON_KM,
+                                    trend_days=fit_t.trend, current_day=0.0)
                 entry["forecast"] = _forecast_json(fc)
                 entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
                                  "source": spec.source}
