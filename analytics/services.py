@@ -19,7 +19,7 @@ from inspections.models import Platform, Vehicle
 
 from . import analysis
 from .inputs import input_key, vehicle_data
-from .models import AdviceItem, AnalysisRequest, AnalysisResult, PooledRate
+from .models import AdviceAction, AdviceItem, AnalysisRequest, AnalysisResult, PooledRate
 
 log = logging.getLogger(__name__)
 RESEND_AFTER = dt.timedelta(minutes=10)
@@ -40,10 +40,12 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
     if existing is not None:
         return existing
     payload, _ = analysis.analyse(vehicle_data(vehicle))
+    previous_keys = set(AdviceItem.objects.filter(vehicle=vehicle).values_list("key", flat=True))
     try:
         with transaction.atomic():
             result = AnalysisResult.objects.create(vehicle=vehicle, input_key=key,
                                                    model_version=MODEL_VERSION, payload=payload)
+            owner_report_on_commit(result=result, previous_keys=previous_keys)
             AdviceItem.objects.filter(vehicle=vehicle).exclude(result=result).delete()
             AdviceItem.objects.bulk_create(
                 AdviceItem(result=result, vehicle=vehicle, key=_advice_key(a), kind=a["kind"],
@@ -120,8 +122,19 @@ def platform_pool(*, platform: Platform) -> int:
     return n
 
 
-def fleet_recompute() -> int:
-    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed."""
+def fleet_recompute(*, fan_out: bool = False) -> int:
+    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed.
+
+    On PostgreSQL this is the vectorised path (:mod:`analytics.fleet_recompute`: whole platform
+    chunks read with COPY; ``fan_out`` sends the chunks to the Celery workers instead of running
+    them here). Elsewhere (the SQLite demo) vehicle by vehicle. Returns the vehicles covered.
+    """
+    from django.db import connection
+
+    if connection.vendor == "postgresql":
+        from . import fleet_recompute as fleet
+
+        return fleet.fleet_recompute(fan_out=fan_out)
     for platform in Platform.objects.all():
         platform_pool(platform=platform)
     n = 0
@@ -165,3 +178,55 @@ def demo_delete() -> None:
     Platform.objects.filter(is_demo=True).delete()
     Workshop.objects.filter(is_demo=True).delete()
     Fleet.objects.filter(is_demo=True).delete()
+
+
+# --------------------------------------------------------------------------- advice actions, reports
+
+
+def owner_report_on_commit(*, result: AnalysisResult, previous_keys: set[str]) -> bool:
+    """After commit, enqueue the owner's PDF if the vehicle has an owner and the result new advice.
+
+    A broker that is down only logs: the owner can still download the PDF from their page.
+    """
+    if result.vehicle.owner_id is None:
+        return False
+    if not {_advice_key(a) for a in result.payload.get("advice", [])} - previous_keys:
+        return False
+
+    def send() -> None:
+        from django.conf import settings
+
+        from . import reports, tasks
+
+        try:
+            if getattr(settings, "CELERY_TASK_ALWAYS_EAGER", False):
+                # in-process jobs: call the service itself (an eager Celery run closes the DB
+                # connection afterwards, which would end the caller's transaction)
+                reports.owner_report_issue(result_id=result.pk, paper="A4", email=True)
+            else:
+                tasks.make_owner_report.apply_async(args=[result.pk, "A4", True], retry=False)
+        except Exception as exc:  # broker down, or an in-process run failed
+            log.warning("owner report for result %s not made (%s)", result.pk, exc)
+
+    transaction.on_commit(send, robust=True)
+    return True
+
+
+def advice_act(*, user, vehicle: Vehicle, key: str, action: str,
+               scheduled_for: dt.date | None = None, note: str = "") -> AdviceAction:
+    """Record a manager's acknowledgement or scheduling of one current advice key (append only)."""
+    from inspections.scoping import can_manage
+
+    if not can_manage(user):
+        raise PermissionError("only managers act on advice")
+    if action not in dict(AdviceAction.ACTIONS):
+        raise ValueError("action: must be 'acknowledged' or 'scheduled'")
+    if action == "scheduled" and scheduled_for is None:
+        raise ValueError("scheduled_for: a date is needed to schedule")
+    if action == "acknowledged":
+        scheduled_for = None
+    if not AdviceItem.objects.filter(vehicle=vehicle, key=key).exists():
+        raise ValueError("key: no current advice with this key for the vehicle")
+    with transaction.atomic():
+        return AdviceAction.objects.create(vehicle=vehicle, key=key, action=action,
+                                           scheduled_for=scheduled_for, note=note[:300], by=user)

@@ -1,0 +1,194 @@
+"""Reads for the manager's and owner's pages and the owner PDF. Every read is scoped.
+
+Fleet-wide figures are aggregated in the database (counts by urgency, drift-rate histograms by
+bucket, the toe-out flips) so the pages stay fast on a fleet of thousands; one vehicle's view
+builds its charts from the stored analysis payload (see :mod:`analytics.charts`).
+"""
+from __future__ import annotations
+
+import datetime as dt
+import math
+
+from django.core.cache import cache
+from django.db.models import Count, F, FloatField, Max, Min, OuterRef, Q, QuerySet, Subquery
+from django.db.models.fields.json import KT
+from django.db.models.functions import Cast, Floor
+from django.utils import timezone
+
+from analytics import charts
+from analytics.core.advice import MODEL_VERSION, SEVERITIES
+from inspections import selectors as records
+from inspections.models import Vehicle
+from inspections.scoping import scoped
+
+from .models import AdviceAction, AdviceItem, AnalysisResult, PooledRate
+
+CORNERS = ("FL", "FR", "RL", "RR")
+ANGLES = ("toe", "camber")
+HIST_BINS = 12
+
+
+def advice_for(user) -> QuerySet[AdviceItem]:
+    return scoped(AdviceItem.objects.all(), user, prefix="vehicle__").select_related(
+        "vehicle", "vehicle__platform")
+
+
+def due_advice(user, *, severity: str | None = None, overdue_only: bool = False) -> QuerySet:
+    qs = advice_for(user).order_by("urgency_rank", F("due_date").asc(nulls_last=True), "id")
+    if severity in SEVERITIES:
+        qs = qs.filter(severity=severity)
+    if overdue_only:
+        qs = qs.filter(due_date__lt=timezone.localdate())
+    return qs
+
+
+def urgency_counts(user) -> list[dict]:
+    """Per severity: items, vehicles, overdue items (one grouped query)."""
+    today = timezone.localdate()
+    rows = {r["severity"]: r for r in advice_for(user).order_by().values("severity").annotate(
+        items=Count("id"), vehicles=Count("vehicle", distinct=True),
+        overdue=Count("id", filter=Q(due_date__lt=today)))}
+    return [rows.get(s, {"severity": s, "items": 0, "vehicles": 0, "overdue": 0})
+            for s in SEVERITIES]
+
+
+def latest_results(user) -> QuerySet[AnalysisResult]:
+    newest = (AnalysisResult.objects.filter(vehicle=OuterRef("vehicle"), model_version=MODEL_VERSION)
+              .order_by("-computed_at", "-pk").values("pk")[:1])
+    return scoped(AnalysisResult.objects.filter(model_version=MODEL_VERSION), user,
+                  prefix="vehicle__").filter(pk=Subquery(newest))
+
+
+def toe_out_flips(user) -> QuerySet[AnalysisResult]:
+    """Latest results where worn parts flip a rear corner's cornering toe change to toe-out."""
+    return (latest_results(user)
+            .filter(Q(payload__compliance__RL__flips_to_toe_out=True)
+                    | Q(payload__compliance__RR__flips_to_toe_out=True))
+            .select_related("vehicle", "vehicle__platform")
+            .annotate(rl_new=KT("payload__compliance__RL__toe_change_new_deg"),
+                      rl_now=KT("payload__compliance__RL__toe_change_measured_deg"),
+                      rr_new=KT("payload__compliance__RR__toe_change_new_deg"),
+                      rr_now=KT("payload__compliance__RR__toe_change_measured_deg"),
+                      rl_flip=KT("payload__compliance__RL__flips_to_toe_out"),
+                      rr_flip=KT("payload__compliance__RR__flips_to_toe_out"))
+            .order_by("vehicle__plate"))
+
+
+def drift_distribution(user) -> list[dict]:
+    """Per platform, corner and angle: the pooled rate and a histogram of vehicles' own rates.
+
+    Rates in deg per 10,000 km; buckets counted in the database (two grouped queries per
+    corner and angle).
+    """
+    visible_platforms = (Vehicle.objects.visible_to(user).values("platform_id").distinct())
+    pooled = {(p.platform_id, p.corner, p.angle): p for p in PooledRate.objects.filter(
+        platform_id__in=visible_platforms).select_related("platform")}
+    results = latest_results(user)
+    out: list[dict] = []
+    for corner in CORNERS:
+        for angle in ANGLES:
+            path = f"payload__drift__{corner}.{angle}__slope_deg_per_10k"
+            rate = Cast(KT(path), FloatField())
+            base = results.annotate(rate=rate).filter(rate__isnull=False)
+            spans = {r["vehicle__platform_id"]: r for r in base.order_by().values(
+                "vehicle__platform_id", "vehicle__platform__name").annotate(
+                lo=Min("rate"), hi=Max("rate"), n=Count("id"))}
+            for pid, s in spans.items():
+                lo, hi = s["lo"], s["hi"]
+                if not hi > lo:  # one rate, or all equal: centre one bucket on it
+                    lo, hi = lo - 0.005, hi + 0.005
+                width = (hi - lo) / HIST_BINS
+                buckets = (base.filter(vehicle__platform_id=pid).annotate(
+                    b=Floor((F("rate") - lo) / width)).order_by().values("b").annotate(n=Count("id")))
+                counts = [0] * HIST_BINS
+                for b in buckets:
+                    counts[min(int(b["b"]), HIST_BINS - 1)] += b["n"]
+                p = pooled.get((pid, corner, angle))
+                mean = p.mean * 1e4 if p else None
+                spread = math.sqrt(p.tau2) * 1e4 if p and math.isfinite(p.tau2) else None
+                out.append({
+                    "platform": s["vehicle__platform__name"], "platform_id": pid, "corner": corner,
+                    "angle": angle, "vehicles": s["n"], "lo": lo, "hi": hi,
+                    "pooled_mean": mean, "pooled_se": p.mean_se * 1e4 if p else None,
+                    "spread": spread, "pooled_vehicles": p.vehicles if p else 0,
+                    "method": p.method if p else "",
+                    "svg": charts.rate_histogram_svg(
+                        counts=counts, edges=[lo + i * width for i in range(HIST_BINS + 1)],
+                        pooled_mean=mean,
+                        title=f"{s['n']} vehicle{'s' if s['n'] != 1 else ''} · "
+                              f"{s['lo']:+.3f} … {s['hi']:+.3f}"),
+                })
+    out.sort(key=lambda r: (r["platform"], r["corner"], r["angle"]))
+    return out
+
+
+def actions_of(vehicle: Vehicle) -> dict[str, AdviceAction]:
+    """The newest action per advice key."""
+    latest: dict[str, AdviceAction] = {}
+    for a in AdviceAction.objects.filter(vehicle=vehicle).select_related("by").order_by("-at", "-pk"):
+        latest.setdefault(a.key, a)
+    return latest
+
+
+def _is_demo(vehicle: Vehicle) -> bool:
+    return bool(vehicle.is_demo or vehicle.platform.is_demo)
+
+
+def _cached(key: str, make):
+    svg = cache.get(key)
+    if svg is None:
+        svg = make()
+        cache.set(key, svg, 60 * 60 * 24)
+    return svg
+
+
+def vehicle_picture(vehicle: Vehicle, result: AnalysisResult) -> dict:
+    """Everything the vehicle page and the owner PDF show, charts included (SVG strings)."""
+    payload = result.payload
+    stamp = f"{result.pk}:{result.computed_at.timestamp():.6f}"
+    demo = _is_demo(vehicle)
+    points: dict[tuple[str, str, str], list] = {}
+    for r in records.readings_of(vehicle).select_related("session"):
+        for angle in ANGLES:
+            points.setdefault((r.corner, angle, r.session.kind), []).append(
+                (float(r.session.odometer_km), float(getattr(r, f"{angle}_deg"))))
+    angles = []
+    for key, entry in sorted(payload.get("drift", {}).items(),
+                             key=lambda kv: (CORNERS.index(kv[0][:2]), kv[0])):
+        corner, angle = key.split(".")
+        title = f"{corner} {angle}"
+        svg = _cached(f"chart:{stamp}:angle:{key}", lambda c=corner, a=angle, e=entry, t=title:
+                      charts.angle_history_svg(title=t, found=points.get((c, a, "as_found"), []),
+                                               adjusted=points.get((c, a, "as_adjusted"), []),
+                                               entry=e, demo=demo))
+        angles.append({"key": key, "corner": corner, "angle": angle, "entry": entry, "svg": svg,
+                       "forecast": entry.get("forecast") or {}, "spec": entry.get("spec")})
+    loads = []
+    for corner in CORNERS:
+        c = payload.get("compliance", {}).get(corner)
+        if not c:
+            continue
+        svg = _cached(f"chart:{stamp}:load:{corner}",
+                      lambda c=c, k=corner: charts.load_case_svg(corner=k, rows=c["rows"], demo=demo))
+        assumptions = sorted({a for row in c["rows"] for a in row["assumptions"]})
+        loads.append({"corner": corner, "rows": c["rows"], "svg": svg, "notes": c.get("notes", []),
+                      "assumptions": assumptions, "verdict_new": c.get("verdict_new"),
+                      "verdict_measured": c.get("verdict_measured"),
+                      "flips": c.get("flips_to_toe_out", False),
+                      "stability_new": c.get("stability_new"),
+                      "stability_measured": c.get("stability_measured")})
+    wear = []
+    for key, entry in sorted(payload.get("wear", {}).items()):
+        corner = key.split(".")[0]
+        title = f"{corner} {entry['part']}"
+        svg = _cached(f"chart:{stamp}:wear:{key}",
+                      lambda e=entry, t=title: charts.wear_trend_svg(title=t, entry=e, demo=demo))
+        wear.append({"key": key, "corner": corner, "entry": entry, "svg": svg,
+                     "forecast": entry.get("forecast") or {}})
+    spec_sources = sorted({a["spec"]["source"] for a in angles if a["spec"]}
+                          | {w["entry"]["limit_source"] for w in wear if w["entry"].get("limit_source")})
+    return {"result": result, "payload": payload, "demo": demo, "angles": angles, "loads": loads,
+            "wear": wear, "spec_sources": spec_sources,
+            "platform_sources": vehicle.platform.sources or {},
+            "assumptions": payload.get("assumptions", {}),
+            "today": dt.date.fromisoformat(payload["today"]) if payload.get("today") else None}
