@@ -119,6 +119,9 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
                 steps.append(adv.ImpactStep(
                     corner=corner, angle=angle, detected_on=rows["measured_on"].iloc[idx],
                     odometer_km=float(x_km[idx]), size_deg=size))
+            if spec is not None:
+                entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
+                                 "source": spec.source}
             if fit.trend is None:
                 out[f"{corner}.{angle}"] = entry
                 continue
@@ -150,8 +153,6 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
                                     upper=spec.upper_deg, horizon_km=HORIZON_KM,
                                     trend_days=fit_t.trend, current_day=0.0)
                 entry["forecast"] = _forecast_json(fc)
-                entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
-                                 "source": spec.source}
                 forecasts.append(adv.DriftForecastInput(corner=corner, angle=angle, forecast=fc))
             out[f"{corner}.{angle}"] = entry
     return out, forecasts, steps

@@ -210,7 +210,6 @@ def _simulate_vehicle(vehicle, plan: PlatformPlan, technician, rng, start, today
     joint_km0 = {c: odo - float(rng.uniform(0, 30_000)) for c in ("FL", "FR")}
     strike_visit = int(rng.integers(5, 9)) if kerb_strike else -1
     step = {"FL": 0.0, "FR": 0.0}
-    a_km = plan.intervals[0] or 25_000
 
     sessions, readings, checks, events = [], [], [], []
     day = start + dt.timedelta(days=int(rng.integers(0, 60)))
@@ -237,7 +236,7 @@ def _simulate_vehicle(vehicle, plan: PlatformPlan, technician, rng, start, today
                   > specs[(axle[c], "toe")].tolerance_deg * 0.8
                   or abs(rows[c]["camber_deg"] - specs[(axle[c], "camber")].nominal_deg)
                   > specs[(axle[c], "camber")].tolerance_deg * 0.9 for c in corners)
-        if out or odo - km_at_adjust >= a_km:
+        if out:  # a check at the interval that finds the axle in band leaves it as found
             adj_time = when + dt.timedelta(minutes=40)
             for c in corners:
                 base_toe[c] = specs[(axle[c], "toe")].nominal_deg + float(rng.normal(0, 0.01))
