@@ -122,19 +122,8 @@ def platform_pool(*, platform: Platform) -> int:
     return n
 
 
-def fleet_recompute(*, fan_out: bool = False) -> int:
-    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed.
-
-    On PostgreSQL this is the vectorised path (:mod:`analytics.fleet_recompute`: whole platform
-    chunks read with COPY; ``fan_out`` sends the chunks to the Celery workers instead of running
-    them here). Elsewhere (the SQLite demo) vehicle by vehicle. Returns the vehicles covered.
-    """
-    from django.db import connection
-
-    if connection.vendor == "postgresql":
-        from . import fleet_recompute as fleet
-
-        return fleet.fleet_recompute(fan_out=fan_out)
+def fleet_recompute() -> int:
+    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed."""
     for platform in Platform.objects.all():
         platform_pool(platform=platform)
     n = 0
