@@ -83,3 +83,34 @@ def readings(toe=0.1, camber=-0.8, caster=4.0):
 
 def at(days_ago: float = 0) -> dt.datetime:
     return timezone.now() - dt.timedelta(days=days_ago)
+
+
+def make_personas(target) -> None:
+    """Set the standard personas and vehicles as attributes of ``target`` (a class or namespace).
+
+    Two workshops (A, B); a fleet F whose van workshop B maintains; two owners; technicians of
+    both workshops; a workshop manager of A, a fleet manager of F, an administrator and a user
+    without a role.
+    """
+    from django.contrib.auth import get_user_model
+
+    t = target
+    t.workshop_a = make_workshop("Workshop A")
+    t.workshop_b = make_workshop("Workshop B")
+    t.fleet = make_fleet("Fleet F")
+    t.platform = make_platform("Platform P")
+    t.owner = make_user("owner", "owner")
+    t.other_owner = make_user("other-owner", "owner")
+    t.tech_a = make_user("tech-a", "technician", workshop=t.workshop_a)
+    t.tech_b = make_user("tech-b", "technician", workshop=t.workshop_b)
+    t.manager_a = make_user("manager-a", "manager", workshop=t.workshop_a)
+    t.fleet_manager = make_user("fleet-manager", "manager", fleet=t.fleet)
+    t.admin = make_user("admin", "administrator")
+    t.no_role = get_user_model().objects.create_user("no-role", password="pw-test-123")
+    # owner's car at workshop A; other owner's car at workshop B; a fleet van at workshop B.
+    t.car_a = make_vehicle(platform=t.platform, workshop=t.workshop_a, owner=t.owner,
+                           plate="AB12 CDE")
+    t.car_b = make_vehicle(platform=t.platform, workshop=t.workshop_b, owner=t.other_owner,
+                           plate="XY99 ZZZ")
+    t.van_f = make_vehicle(platform=t.platform, workshop=t.workshop_b, fleet=t.fleet,
+                           plate="VN70 FLT")

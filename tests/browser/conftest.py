@@ -78,29 +78,10 @@ def media_root(settings, tmp_path):
 
 @pytest.fixture
 def personas(transactional_db):
-    from django.contrib.auth import get_user_model
-
     from tests import factories as f
 
     p = SimpleNamespace()
-    p.workshop_a = f.make_workshop("Workshop A")
-    p.workshop_b = f.make_workshop("Workshop B")
-    p.fleet = f.make_fleet("Fleet F")
-    p.platform = f.make_platform("Platform P")
-    p.owner = f.make_user("owner", "owner")
-    p.other_owner = f.make_user("other-owner", "owner")
-    p.tech_a = f.make_user("tech-a", "technician", workshop=p.workshop_a)
-    p.tech_b = f.make_user("tech-b", "technician", workshop=p.workshop_b)
-    p.manager_a = f.make_user("manager-a", "manager", workshop=p.workshop_a)
-    p.fleet_manager = f.make_user("fleet-manager", "manager", fleet=p.fleet)
-    p.admin = f.make_user("admin", "administrator")
-    p.no_role = get_user_model().objects.create_user("no-role", password=PASSWORD)
-    p.car_a = f.make_vehicle(platform=p.platform, workshop=p.workshop_a, owner=p.owner,
-                             plate="AB12 CDE")
-    p.car_b = f.make_vehicle(platform=p.platform, workshop=p.workshop_b, owner=p.other_owner,
-                             plate="XY99 ZZZ")
-    p.van_f = f.make_vehicle(platform=p.platform, workshop=p.workshop_b, fleet=p.fleet,
-                             plate="VN70 FLT")
+    f.make_personas(p)
     p.password = PASSWORD
     return p
 
