@@ -8,7 +8,7 @@ TEST_DATABASE_URL ?= postgres:///fleetsvc?host=$(PGSOCK)
 TEST_REDIS_URL    ?= redis://127.0.0.1:6379/7
 DEMO_PASSWORD     ?= demo-pass-2026
 
-.PHONY: venv demo test lint services bench clean
+.PHONY: venv demo test lint services bench bench-load clean
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PY) -m venv $(VENV)
@@ -41,6 +41,12 @@ lint: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/pip install -q -e ".[dev,bench]"
 	$(BIN)/python bench/bench_corner.py
+
+## make bench-load: demo in a dedicated PostgreSQL database, gunicorn + worker + own Redis on
+## loopback, locust headless at 10 and 50 users (about 10 minutes); figures in the README "Load"
+bench-load: $(STAMP) services
+	$(BIN)/pip install -q -e ".[dev,bench]"
+	SECRET_KEY=bench-only-key $(BIN)/python bench/bench_load.py --pg-host $(PGSOCK)
 
 clean:
 	rm -rf $(VENV) var

@@ -7,6 +7,8 @@ Assumptions used here are stated in ``ASSUMPTIONS`` and carried in every payload
 from __future__ import annotations
 
 import datetime as dt
+import functools
+import json
 import math
 from dataclasses import asdict
 
@@ -15,7 +17,7 @@ import pandas as pd
 
 from analytics.core import advice as adv
 from analytics.core import corner_from_dict, mirror_corner
-from analytics.core.compliance import load_response, stability_verdict
+from analytics.core.compliance import stability_verdict, toe_change_for_link_stiffness
 from analytics.core.condition import (
     DEFLECTION_ASSUMPTION,
     FINDING_STIFFNESS_FACTORS,
@@ -168,6 +170,13 @@ def _replaced_flags(checks: pd.DataFrame, events: pd.DataFrame, corner: str, par
     return flags
 
 
+@functools.lru_cache(maxsize=256)
+def _corner_of(geometry_json: str, side: str):
+    """A platform's validated corner for one side (validation costs ~10 ms; files rarely change)."""
+    left = corner_from_dict(json.loads(geometry_json))
+    return left if side == "left" else mirror_corner(left)
+
+
 def _corner_models(data: VehicleData):
     """New and measured corner per position (FL…RR) from the platform's files and the checks."""
     new, measured, conditions_used = {}, {}, {}
@@ -176,8 +185,7 @@ def _corner_models(data: VehicleData):
         geo = data.corners.get(CORNER_AXLE[pos])
         if geo is None:
             continue
-        left = corner_from_dict(geo)
-        corner = left if CORNER_SIDE[pos] == "left" else mirror_corner(left)
+        corner = _corner_of(json.dumps(geo, sort_keys=True), CORNER_SIDE[pos])
         new[pos] = corner
         conds: dict[str, LinkCondition] = {}
         latest = checks[checks["corner"] == pos].sort_values("checked_at").groupby("part").tail(1)
@@ -305,22 +313,13 @@ def _wear(data: VehicleData, new, km_per_day, today, odo):
 
 
 def _toe_change_of_stiffness(data: VehicleData, corner_new, pos: str, link: str):
-    """Vectorised k (N/mm) → cornering toe change (deg) of this outer rear wheel.
-
-    Evaluated exactly on a log-spaced grid of the link's stiffness and interpolated in log k.
-    """
-    from analytics.core.corner_file import with_links
-
+    """Vectorised k (N/mm, any shape) → cornering toe change (deg) of this outer rear wheel."""
     lp = _load_platform(data.vehicle.platform)
     force = vehicle_load_cases(lp, outer_side=CORNER_SIDE[pos])[0].delta_force(pos)
-    k0 = float(corner_new.stiffness[corner_new.link_index(link)])
-    grid = np.geomspace(k0 * 0.01, k0 * 3.0, 48)
-    toe = np.array([float(load_response(with_links(corner_new, stiffness={link: float(k)}),
-                                        force).toe_change_deg[0]) for k in grid])
-    lg = np.log(grid)
 
     def fn(k):
-        return np.interp(np.log(np.clip(np.asarray(k, float), grid[0], grid[-1])), lg, toe)
+        k = np.asarray(k, dtype=float)
+        return toe_change_for_link_stiffness(corner_new, force, link, k.ravel()).reshape(k.shape)
 
     return fn
 

@@ -9,6 +9,11 @@ Variables (all optional unless stated):
 - ``EMAIL_URL``-style pieces: ``EMAIL_HOST``/``EMAIL_PORT``/``EMAIL_HOST_USER``/
   ``EMAIL_HOST_PASSWORD``/``EMAIL_USE_TLS`` switch from the console backend to SMTP,
 - ``MEDIA_ROOT`` (default ``var/media``), ``FLEETSVC_SECURE`` (production cookie/HSTS settings).
+- Sign-in throttling (django-axes): ``FLEETSVC_SIGNIN_THROTTLE`` (default on),
+  ``FLEETSVC_SIGNIN_FAILURES`` (failed sign-ins of one user name from one address before the
+  lockout, default 5), ``FLEETSVC_SIGNIN_COOLOFF_MIN`` (lockout length, default 15 minutes),
+  ``FLEETSVC_TRUSTED_PROXY`` (on behind nginx: take the caller's address from the last
+  ``X-Forwarded-For`` hop nginx appended).
 
 A malformed value stops start-up with one line on stderr naming the variable.
 """
@@ -16,6 +21,8 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
+
+from csp.constants import NONE, SELF, UNSAFE_INLINE
 
 from fleetsvc.env import (
     ConfigError,
@@ -46,6 +53,10 @@ try:
     MEDIA_ROOT = Path(env_str("MEDIA_ROOT", str(BASE_DIR / "var" / "media")))
     SECURE = env_bool("FLEETSVC_SECURE", False)
     JOB_TIMEOUT_S = env_int("FLEETSVC_JOB_TIMEOUT_S", 300, minimum=1)
+    AXES_ENABLED = env_bool("FLEETSVC_SIGNIN_THROTTLE", True)
+    AXES_FAILURE_LIMIT = env_int("FLEETSVC_SIGNIN_FAILURES", 5, minimum=1)
+    _signin_cooloff_min = env_int("FLEETSVC_SIGNIN_COOLOFF_MIN", 15, minimum=1)
+    FLEETSVC_TRUSTED_PROXY = env_bool("FLEETSVC_TRUSTED_PROXY", False)
 except ConfigError as exc:  # one line naming the variable, no traceback
     sys.stderr.write(f"fleetsvc configuration error: {exc}\n")
     raise SystemExit(2) from None
@@ -64,18 +75,23 @@ INSTALLED_APPS = [
     "rest_framework",
     "rest_framework.authtoken",
     "drf_spectacular",
+    "axes",
+    "csp",
     "inspections",
     "analytics",
+    "api",
 ]
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    "csp.middleware.CSPMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
     "django.contrib.auth.middleware.AuthenticationMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    "axes.middleware.AxesMiddleware",  # last: turns a locked-out sign-in into the 429 page
 ]
 
 ROOT_URLCONF = "fleetsvc.urls"
@@ -128,7 +144,12 @@ CELERY_TASK_EAGER_PROPAGATES = True
 CELERY_TASK_ACKS_LATE = True
 CELERY_TASK_REJECT_ON_WORKER_LOST = True
 CELERY_WORKER_PREFETCH_MULTIPLIER = 1
-CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": JOB_TIMEOUT_S * 4}
+# A publish after commit must not hold a web request on a broker that is down (no connection
+# retries: kombu would sleep 2 s or more) or hung (socket timeouts): it fails within about a
+# second and the request waits for the sweep (tests/faults/test_broker_down.py). The worker's
+# own consumer connection keeps Celery's reconnect policy.
+CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": JOB_TIMEOUT_S * 4, "max_retries": 0,
+                                   "socket_connect_timeout": 1.0, "socket_timeout": 1.0}
 CELERY_TASK_TIME_LIMIT = JOB_TIMEOUT_S
 CELERY_TIMEZONE = TIME_ZONE
 CELERY_BEAT_SCHEDULE = {
@@ -141,6 +162,60 @@ CELERY_BEAT_SCHEDULE = {
         "schedule": 24 * 3600.0,
     },
 }
+
+# ---- Security (issue 6, hardening). Production: DEBUG=0, FLEETSVC_SECURE=1, a long SECRET_KEY;
+# `manage.py check --deploy` is clean then (tests/inspections/test_hardening.py runs it).
+
+# Argon2id first (OWASP parameters, fleetsvc/signin.py); the others only verify older hashes,
+# which Django re-hashes with Argon2 at the next sign-in.
+PASSWORD_HASHERS = [
+    "fleetsvc.signin.Argon2Hasher",
+    "django.contrib.auth.hashers.PBKDF2PasswordHasher",
+    "django.contrib.auth.hashers.PBKDF2SHA1PasswordHasher",
+    "django.contrib.auth.hashers.ScryptPasswordHasher",
+]
+# Sign-in throttling: django-axes counts failures per (user name, address) in the database and
+# answers a locked-out sign-in with 429 and the signin_locked page. A success clears the count.
+AUTHENTICATION_BACKENDS = [
+    "fleetsvc.signin.ThrottledSignInBackend",  # an axes AxesStandaloneBackend, first
+    "django.contrib.auth.backends.ModelBackend",
+]
+AXES_LOCKOUT_PARAMETERS = [["username", "ip_address"]]
+AXES_COOLOFF_TIME = _signin_cooloff_min / 60  # hours
+AXES_RESET_ON_SUCCESS = True
+AXES_LOCKOUT_TEMPLATE = "signin_locked.html"
+AXES_CLIENT_IP_CALLABLE = "fleetsvc.signin.client_ip"
+AXES_VERBOSE = False
+
+# Content-Security-Policy (django-csp 4): everything from this origin; no inline or eval'd
+# script, no plugins, no framing, forms post only here. Style *attributes* stay allowed
+# (style-src-attr): the tolerance bands place their markers with style="left:…%" and the
+# matplotlib SVG charts embedded in pages carry their presentation in style attributes; an
+# attribute cannot run script. <style> elements and style sheets must come from this origin.
+CONTENT_SECURITY_POLICY = {
+    "DIRECTIVES": {
+        "default-src": [SELF],
+        "script-src": [SELF],
+        "style-src": [SELF],
+        "style-src-attr": [UNSAFE_INLINE],
+        "img-src": [SELF, "data:"],
+        "font-src": [SELF],
+        "connect-src": [SELF],
+        "worker-src": [SELF],
+        "object-src": [NONE],
+        "base-uri": [SELF],
+        "form-action": [SELF],
+        "frame-ancestors": [NONE],
+    },
+}
+X_FRAME_OPTIONS = "DENY"
+SECURE_CONTENT_TYPE_NOSNIFF = True
+SECURE_REFERRER_POLICY = "same-origin"
+SESSION_COOKIE_HTTPONLY = True
+# Uploads: request bodies without files (the bay's JSON submit) up to 2.5 MB; at most 12 files in
+# one request; each photo ≤ 5 MB and a real image (inspections.forms.validate_photos, Pillow);
+# a CSV import ≤ inspections.importing.MAX_FILE_BYTES. nginx caps the whole request at 32 MB.
+DATA_UPLOAD_MAX_MEMORY_SIZE = 2_621_440
 
 if SECURE:
     SESSION_COOKIE_SECURE = True

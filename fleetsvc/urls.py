@@ -9,4 +9,6 @@ urlpatterns = [
     path("signout/", auth_views.LogoutView.as_view(), name="logout"),
     path("", include("inspections.urls")),
     path("analysis/", include("analytics.urls")),
+    path("records/", include("inspections.records_urls")),
+    path("api/", include("api.urls")),
 ]

@@ -4,6 +4,7 @@ from django.contrib import admin
 from .models import (
     AlignmentSession,
     AlignmentSpec,
+    AuditEntry,
     ComponentCheck,
     ComponentLimit,
     ComponentPhoto,
@@ -98,3 +99,21 @@ admin.site.register(Fleet)
 admin.site.register(Profile)
 admin.site.register(ComponentPhoto)
 admin.site.site_header = "fleetsvc administration"
+
+
+@admin.register(AuditEntry)
+class AuditEntryAdmin(admin.ModelAdmin):
+    """The audit trail: viewable only; entries are written by the services and never changed."""
+
+    list_display = ("at", "actor", "action", "object_type", "object_id", "vehicle", "reason")
+    list_filter = ("action", "object_type")
+    search_fields = ("reason", "actor__username")
+
+    def has_add_permission(self, request):
+        return False
+
+    def has_change_permission(self, request, obj=None):
+        return False
+
+    def has_delete_permission(self, request, obj=None):
+        return False

@@ -12,6 +12,7 @@ Error keys use the services' names (``odometer_km``, ``readings[FL].toe_deg``,
 from __future__ import annotations
 
 import datetime as dt
+import warnings
 
 from django import forms
 from django.core.exceptions import ValidationError
@@ -191,8 +192,13 @@ def validate_photos(files) -> list:
                 f"{upload.name} is {upload.size / 1e6:.1f} MB; the limit is 5 MB per photo")
         try:
             upload.seek(0)
-            with Image.open(upload) as image:
-                image.verify()
+            with warnings.catch_warnings():
+                # A header claiming more pixels than Pillow's limit is a decompression bomb.
+                warnings.simplefilter("error", Image.DecompressionBombWarning)
+                with Image.open(upload) as image:
+                    image.verify()
+        except (Image.DecompressionBombError, Image.DecompressionBombWarning):
+            raise ValidationError(f"{upload.name} claims too many pixels to be a photo") from None
         except (UnidentifiedImageError, OSError, SyntaxError, ValueError):
             raise ValidationError(f"{upload.name} is not a readable image") from None
         finally:

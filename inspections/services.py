@@ -15,6 +15,7 @@ from django.core.exceptions import ValidationError
 from django.db import IntegrityError, transaction
 from django.db.models import Max
 
+from . import audit
 from .models import (
     PARTS_BY_CODE,
     AlignmentSession,
@@ -177,6 +178,7 @@ def session_submit(
         if existing is None:
             raise
         return existing
+    audit.record_created(session, actor=technician)
     record_submitted.send(sender=AlignmentSession, record=session, vehicle=vehicle)
     return session
 
@@ -191,6 +193,8 @@ def session_correct(*, original: AlignmentSession, author, reason: str, **change
         "equipment_calibrated_on": original.equipment_calibrated_on,
         "odometer_change_reason": original.odometer_change_reason,
         "notes": original.notes,
+        "ride_heights_mm": {c: getattr(original, f"ride_height_{c.lower()}_mm")
+                            for c in ("FL", "FR", "RL", "RR")},
         "readings": [
             {k: getattr(r, k) for k in ("corner", "toe_deg", "camber_deg", "caster_deg", "sai_deg")}
             for r in original.readings.all()
@@ -287,6 +291,7 @@ def component_check_submit(
         notes=notes, supersedes=supersedes, correction_reason=correction_reason.strip(),
         client_token=client_token or uuid.uuid4(),
     )
+    audit.record_created(check, actor=technician)
     record_submitted.send(sender=ComponentCheck, record=check, vehicle=vehicle)
     return check
 
@@ -329,6 +334,7 @@ def service_event_record(
         vehicle=vehicle, workshop=vehicle.workshop, recorded_by=recorded_by,
         performed_at=performed_at, odometer_km=odometer_km, kind=kind, corner=corner, part=part,
         reason=reason, notes=notes, client_token=client_token or uuid.uuid4())
+    audit.record_created(event, actor=recorded_by)
     record_submitted.send(sender=ServiceEvent, record=event, vehicle=vehicle)
     return event
 

@@ -36,6 +36,7 @@ __all__ = [
     "play_sensitivity",
     "play_bands",
     "stability_verdict",
+    "toe_change_for_link_stiffness",
     "DEFAULT_VERDICT_LATERAL_FORCE_N",
 ]
 
@@ -163,6 +164,33 @@ def load_response(corner: Corner, force_N: ArrayLike, point_mm: ArrayLike | None
         vertical_reaction_N=members[:, 5], displacement_mm=u[:, :3], rotation_rad=u[:, 3:],
         toe_change_deg=toe - toe0, camber_change_deg=camber - camber0, toe_band_deg=tb,
         camber_band_deg=cb, link_names=corner.link_names)
+
+
+def toe_change_for_link_stiffness(corner: Corner, force_N: ArrayLike, link: str,
+                                  stiffness_N_per_mm: ArrayLike) -> np.ndarray:
+    """Toe change (deg, shape (n,)) under one force (3,) N at the contact patch, with link
+    ``link``'s stiffness set to each of ``stiffness_N_per_mm`` (n,) and the others as in
+    ``corner``.
+
+    Same model as :func:`load_response`: member forces do not depend on stiffness (statically
+    determinate), so only that link's deflection changes; the n carrier displacements are solved
+    in one batch.
+    """
+    f = np.asarray(force_N, dtype=float).reshape(3)
+    k = np.asarray(stiffness_N_per_mm, dtype=float).reshape(-1)
+    if not (np.all(np.isfinite(f)) and np.all(np.isfinite(k)) and np.all(k > 0)):
+        raise ValueError("force_N must be finite and stiffness_N_per_mm finite and > 0")
+    i = corner.link_index(link)
+    wrench = np.concatenate([f, np.cross(corner.contact_patch - corner.wheel_centre, f)])
+    g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
+    members = np.linalg.solve(g, wrench)  # (6,)
+    delta = np.broadcast_to(members * _stiffness_diag(corner), (k.size, 6)).copy()
+    delta[:, i] = members[i] / k
+    u = np.linalg.solve(g.T, delta.T).T  # (n, 6)
+    spin = np.einsum("mij,j->mi", rotation_matrices(u[:, 3:]), corner.spin_axis)
+    toe, _ = toe_camber_deg(spin)
+    toe0, _ = toe_camber_deg(corner.spin_axis)
+    return toe - toe0
 
 
 def stability_verdict(corner: Corner, lateral_force_N: float | None = None) -> StabilityVerdict:

@@ -46,6 +46,7 @@ Pure numpy/scipy; no Django.
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
@@ -118,7 +119,9 @@ def _check_confidence(confidence: float) -> float:
     return float(confidence)
 
 
+@functools.lru_cache(maxsize=64)
 def _z(confidence: float) -> float:
+    """Two-sided normal quantile for ``confidence`` (cached: forecasts call it per grid cell)."""
     return float(stats.norm.ppf(0.5 + _check_confidence(confidence) / 2.0))
 
 

@@ -11,9 +11,8 @@ from django.utils import timezone
 from analytics import selectors
 from analytics.core.advice import SEVERITIES
 from analytics.core.caution import CAUTION
+from fleetsvc.csvsafe import csv_response
 from inspections.scoping import can_manage
-
-from .csvout import csv_response
 
 PAGE = 25
 

@@ -11,10 +11,9 @@ from django.views.decorators.http import require_POST
 
 from analytics import selectors, services
 from analytics.core.caution import CAUTION
+from fleetsvc.csvsafe import csv_response
 from inspections.models import Vehicle
 from inspections.scoping import can_manage, get_visible_or_404
-
-from .csvout import csv_response
 
 ADVICE_PAGE = 20
 

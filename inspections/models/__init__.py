@@ -4,6 +4,7 @@ Units (DESIGN.md §3): lengths mm, forces N, angles degrees, odometer km, times 
 Axes are ISO 8855 (x forward, y left, z up). Toe positive = toe-in; camber positive = top of the
 wheel leans outboard; caster positive = top of the steering axis leans rearward.
 """
+from .audit import AuditEntry
 from .catalogue import (
     AXLES,
     CORNERS,
@@ -35,6 +36,7 @@ __all__ = [
     "VERDICTS",
     "AlignmentSession",
     "AlignmentSpec",
+    "AuditEntry",
     "ComponentCheck",
     "ComponentLimit",
     "ComponentPhoto",

@@ -20,7 +20,12 @@ from __future__ import annotations
 import json
 import uuid
 
-from django.core.exceptions import BadRequest, TooManyFilesSent, ValidationError
+from django.core.exceptions import (
+    BadRequest,
+    RequestDataTooBig,
+    TooManyFilesSent,
+    ValidationError,
+)
 from django.http import Http404, JsonResponse
 from django.urls import reverse
 from django.views.decorators.http import require_POST
@@ -78,6 +83,10 @@ def _payload(request) -> dict:
             data = json.loads(request.POST.get("payload") or "{}")
     except (ValueError, UnicodeDecodeError):
         raise Refused({"__all__": "the submit could not be read (malformed JSON)"}) from None
+    except TooManyFilesSent:
+        raise Refused({"__all__": "too many photos in one submit"}) from None
+    except RequestDataTooBig:
+        raise Refused({"__all__": "the submit is too large"}, status=413) from None
     if not isinstance(data, dict):
         raise Refused({"__all__": "the submit must be a JSON object"})
     return data

@@ -3,13 +3,14 @@ from __future__ import annotations
 
 import csv
 import io
+import re
 
 from django.urls import reverse
 from django.utils.html import escape
 
 from analytics.core.caution import CAUTION
 from analytics.models import AdviceAction, AdviceItem
-from analytics.views.csvout import safe_cell
+from fleetsvc.csvsafe import safe_cell
 from tests.analytics.analysis_setup import add_corners, give_history
 from tests.base import PersonaTestCase
 
@@ -131,9 +132,11 @@ class ActionTests(AnalysisPagesTestCase):
 
 class CsvTests(AnalysisPagesTestCase):
     def test_cells_that_a_spreadsheet_would_run_are_escaped(self):
-        for raw in ("=HYPERLINK(1)", "+1", "-0.5", "@SUM(A1)"):
+        for raw in ("=HYPERLINK(1)", "+1+cmd", "-2+A1", "@SUM(A1)"):
             self.assertEqual(safe_cell(raw), "'" + raw)
         self.assertEqual(safe_cell("FL toe"), "FL toe")
+        self.assertEqual(safe_cell("-0.5"), "-0.5")  # a plain number stays a number
+        self.assertEqual(safe_cell(-0.5), "-0.5")
         self.assertEqual(safe_cell(None), "")
 
     def test_the_fleet_csv_escapes_a_plate_that_looks_like_a_formula(self):
@@ -147,13 +150,15 @@ class CsvTests(AnalysisPagesTestCase):
         self.assertEqual(plates, {"'=CMD()"})
         self.assertEqual(len(rows) - 1, AdviceItem.objects.filter(vehicle=self.car_a).count())
 
-    def test_the_vehicle_csv_escapes_negative_numbers_and_keeps_the_caution(self):
+    def test_the_vehicle_csv_escapes_formulas_keeps_numbers_and_the_caution(self):
         self.client.force_login(self.manager_a)
         response = self.client.get(self.vehicle_url(self.car_a) + "?format=csv")
         body = response.content.decode()
         rows = list(csv.reader(io.StringIO(body)))
         cells = [c for r in rows for c in r]
-        self.assertFalse([c for c in cells if c[:1] in "=+-@" and c], "an unescaped formula lead")
+        plain_number = re.compile(r"[+-]?\d+(\.\d+)?([eE][+-]?\d+)?")
+        self.assertFalse([c for c in cells if c[:1] in "=+-@" and c and not plain_number.fullmatch(c)],
+                         "an unescaped formula lead")
         self.assertIn(CAUTION, cells)
         self.assertTrue(any(r[0] == "load case" for r in rows))
 

@@ -80,6 +80,12 @@ class CorrectionTests(PersonaTestCase):
         assert [s.pk for s in selectors.history_of_session(fixed)] == [original.pk, fixed.pk]
         assert fixed.readings.count() == 4
 
+    def test_a_correction_keeps_the_ride_heights_it_does_not_change(self):
+        original = submit(self.car_a, self.tech_a, ride_heights_mm={"FL": 371.0, "RR": 365.5})
+        fixed = services.session_correct(original=original, author=self.tech_a, reason="notes",
+                                         notes="rig re-zeroed")
+        assert (fixed.ride_height_fl_mm, fixed.ride_height_rr_mm) == (371.0, 365.5)
+
     def test_a_correction_needs_a_reason(self):
         original = submit(self.car_a, self.tech_a)
         with pytest.raises(ValidationError) as err:

@@ -178,3 +178,18 @@ def test_bad_forces_are_refused():
         load_response(corner, [1.0, np.inf, 0.0])
     with pytest.raises(ValueError, match="^lateral_force_N:"):
         stability_verdict(corner, -5.0)
+
+
+def test_the_batched_stiffness_sweep_matches_one_corner_per_stiffness():
+    # invariant against the project's own unbatched path (load_response on a modified corner)
+    from analytics.core.compliance import toe_change_for_link_stiffness
+    from analytics.core.corner_file import with_links
+    from analytics.core.demo_corners import demo_corner
+
+    corner = demo_corner("rear", "left")
+    force = np.array([120.0, -2900.0, 350.0])
+    ks = np.geomspace(50.0, 20_000.0, 7)
+    batched = toe_change_for_link_stiffness(corner, force, "toe link", ks)
+    one_by_one = [float(load_response(with_links(corner, stiffness={"toe link": float(k)}),
+                                      force).toe_change_deg[0]) for k in ks]
+    np.testing.assert_allclose(batched, one_by_one, rtol=1e-10, atol=1e-12)
