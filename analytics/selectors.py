@@ -7,6 +7,9 @@ builds its charts from the stored analysis payload (see :mod:`analytics.charts`)
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
+import json
+import logging
 import math
 
 from django.core.cache import cache
@@ -26,6 +29,8 @@ from .models import AdviceAction, AdviceItem, AnalysisResult, PooledRate
 CORNERS = ("FL", "FR", "RL", "RR")
 ANGLES = ("toe", "camber")
 HIST_BINS = 12
+
+log = logging.getLogger(__name__)
 
 
 def advice_for(user) -> QuerySet[AdviceItem]:
@@ -112,14 +117,19 @@ def drift_distribution(user) -> list[dict]:
                     "pooled_mean": mean, "pooled_se": p.mean_se * 1e4 if p else None,
                     "spread": spread, "pooled_vehicles": p.vehicles if p else 0,
                     "method": p.method if p else "",
-                    "svg": charts.rate_histogram_svg(
-                        counts=counts, edges=[lo + i * width for i in range(HIST_BINS + 1)],
-                        pooled_mean=mean,
-                        title=f"{s['n']} vehicle{'s' if s['n'] != 1 else ''} · "
-                              f"{s['lo']:+.3f} … {s['hi']:+.3f}"),
+                    "svg": _histogram(counts, [lo + i * width for i in range(HIST_BINS + 1)], mean,
+                                      f"{s['n']} vehicle{'s' if s['n'] != 1 else ''} · "
+                                      f"{s['lo']:+.3f} … {s['hi']:+.3f}"),
                 })
     out.sort(key=lambda r: (r["platform"], r["corner"], r["angle"]))
     return out
+
+
+def _histogram(counts: list[int], edges: list[float], mean: float | None, title: str) -> str:
+    """The histogram SVG, drawn once per distinct content (drawing costs ~0.2 s each)."""
+    digest = hashlib.sha1(json.dumps([counts, edges, mean, title]).encode()).hexdigest()
+    return _cached(f"chart:hist:{digest}", lambda: charts.rate_histogram_svg(
+        counts=counts, edges=edges, pooled_mean=mean, title=title))
 
 
 def actions_of(vehicle: Vehicle) -> dict[str, AdviceAction]:
@@ -135,10 +145,18 @@ def _is_demo(vehicle: Vehicle) -> bool:
 
 
 def _cached(key: str, make):
-    svg = cache.get(key)
+    """A chart from the cache, else drawn and stored. A cache that is down only costs time."""
+    try:
+        svg = cache.get(key)
+    except Exception as exc:  # noqa: BLE001 - e.g. Redis stopped: draw it instead
+        log.warning("chart cache unavailable (%s); drawing %s", exc, key)
+        return make()
     if svg is None:
         svg = make()
-        cache.set(key, svg, 60 * 60 * 24)
+        try:
+            cache.set(key, svg, 60 * 60 * 24)
+        except Exception as exc:  # noqa: BLE001
+            log.warning("chart cache unavailable (%s)", exc)
     return svg
 
 

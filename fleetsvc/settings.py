@@ -135,6 +135,13 @@ if EMAIL_HOST:
 else:
     EMAIL_BACKEND = "django.core.mail.backends.console.EmailBackend"
 
+# Cache (charts drawn once): Redis when configured, shared by every web worker; else in-process.
+if REDIS_URL:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.redis.RedisCache",
+                          "LOCATION": REDIS_URL, "KEY_PREFIX": "fleetsvc", "TIMEOUT": 24 * 3600}}
+else:
+    CACHES = {"default": {"BACKEND": "django.core.cache.backends.locmem.LocMemCache"}}
+
 # Celery: with REDIS_URL unset, jobs run in-process (eagerly) so the embedded default needs no
 # broker. With it set, a real worker consumes the queue.
 CELERY_BROKER_URL = REDIS_URL or "memory://"
