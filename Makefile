@@ -48,5 +48,10 @@ bench-load: $(STAMP) services
 	$(BIN)/pip install -q -e ".[dev,bench]"
 	SECRET_KEY=bench-only-key $(BIN)/python bench/bench_load.py --pg-host $(PGSOCK)
 
+## make bench-fleet: its own PostgreSQL database (fleetsvc_fleetscale), 10 000 invented vehicles,
+## a real 2-process Celery worker on Redis db 9; prints the fleet-scale table (README)
+bench-fleet: $(STAMP) services
+	$(BIN)/python bench/bench_fleet.py $(BENCH_FLEET_ARGS)
+
 clean:
 	rm -rf $(VENV) var

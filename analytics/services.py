@@ -6,6 +6,8 @@ transaction.
 """
 from __future__ import annotations
 
+import contextlib
+import contextvars
 import datetime as dt
 import logging
 
@@ -39,7 +41,7 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
                                              model_version=MODEL_VERSION).first()
     if existing is not None:
         return existing
-    payload, _ = analysis.analyse(vehicle_data(vehicle))
+    payload = _analysis_payload(vehicle)
     previous_keys = set(AdviceItem.objects.filter(vehicle=vehicle).values_list("key", flat=True))
     try:
         with transaction.atomic():
@@ -60,6 +62,22 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
         return AnalysisResult.objects.get(vehicle=vehicle, input_key=key,
                                           model_version=MODEL_VERSION)
     return result
+
+
+def _analysis_payload(vehicle: Vehicle) -> dict:
+    """One vehicle's payload: on PostgreSQL through the vectorised path (the same result as
+    ``analysis.analyse``, tested; a worker keeps the platform's compliance caches warm), else —
+    or for data the fast path hands back — the per-vehicle reference."""
+    from django.db import connection
+
+    if connection.vendor == "postgresql":
+        from .fleet_recompute import analyse_chunk
+
+        hit = analyse_chunk(vehicle.platform_id, [vehicle.pk]).get(vehicle.pk)
+        if hit is not None:
+            return hit[0]
+    payload, _ = analysis.analyse(vehicle_data(vehicle))
+    return payload
 
 
 def request_process(*, request_id: int) -> int | None:
@@ -122,8 +140,19 @@ def platform_pool(*, platform: Platform) -> int:
     return n
 
 
-def fleet_recompute() -> int:
-    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed."""
+def fleet_recompute(*, fan_out: bool = False) -> int:
+    """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed.
+
+    On PostgreSQL this is the vectorised path (:mod:`analytics.fleet_recompute`: whole platform
+    chunks read with COPY; ``fan_out`` sends the chunks to the Celery workers instead of running
+    them here). Elsewhere (the SQLite demo) vehicle by vehicle. Returns the vehicles covered.
+    """
+    from django.db import connection
+
+    if connection.vendor == "postgresql":
+        from . import fleet_recompute as fleet
+
+        return fleet.fleet_recompute(fan_out=fan_out)
     for platform in Platform.objects.all():
         platform_pool(platform=platform)
     n = 0
@@ -143,6 +172,7 @@ def demo_delete() -> None:
     """Remove the demo scenario (records marked demo) so it can be rebuilt."""
     from django.contrib.auth import get_user_model
 
+    from inspections.audit import demo_entries_delete
     from inspections.models import (
         AlignmentSession,
         ComponentCheck,
@@ -153,6 +183,7 @@ def demo_delete() -> None:
     )
 
     vehicles = Vehicle.objects.filter(is_demo=True)
+    demo_entries_delete()  # the audit trail of demo vehicles goes with them (the one exception)
     AnalysisRequest.objects.filter(vehicle__in=vehicles).delete()
     AnalysisResult.objects.filter(vehicle__in=vehicles).delete()
     ComponentCheck.objects.filter(vehicle__in=vehicles).update(supersedes=None)
@@ -172,12 +203,26 @@ def demo_delete() -> None:
 # --------------------------------------------------------------------------- advice actions, reports
 
 
+_owner_notifications: contextvars.ContextVar[bool] = contextvars.ContextVar(
+    "owner_notifications", default=True)
+
+
+@contextlib.contextmanager
+def owner_notifications_paused():
+    """Analyse without sending owners their PDF (the demo builder: nobody to tell yet)."""
+    token = _owner_notifications.set(False)
+    try:
+        yield
+    finally:
+        _owner_notifications.reset(token)
+
+
 def owner_report_on_commit(*, result: AnalysisResult, previous_keys: set[str]) -> bool:
     """After commit, enqueue the owner's PDF if the vehicle has an owner and the result new advice.
 
     A broker that is down only logs: the owner can still download the PDF from their page.
     """
-    if result.vehicle.owner_id is None:
+    if result.vehicle.owner_id is None or not _owner_notifications.get():
         return False
     if not {_advice_key(a) for a in result.payload.get("advice", [])} - previous_keys:
         return False

@@ -23,8 +23,27 @@ def sweep_pending_requests() -> int:
 
 @shared_task(name="analytics.tasks.recompute_fleet", acks_late=True)
 def recompute_fleet() -> int:
-    """Nightly: recompute every vehicle whose inputs or model version changed."""
-    return services.fleet_recompute()
+    """Nightly: recompute every vehicle whose inputs or model version changed (chunks fanned
+    out to the workers as :func:`recompute_chunk` tasks)."""
+    return services.fleet_recompute(fan_out=True)
+
+
+@shared_task(name="analytics.tasks.recompute_chunk", acks_late=True, **RETRY)
+def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> int:
+    """One platform chunk of the fleet recompute; returns the results written (0 on a rerun)."""
+    from . import fleet_recompute
+
+    return fleet_recompute.recompute_chunk(platform_id, vehicle_ids).written
+
+
+@shared_task(name="analytics.tasks.pool_platform", acks_late=True, **RETRY)
+def pool_platform(platform_id: int) -> int:
+    """Refresh one platform's pooled drift rates (the first phase of a fanned-out recompute)."""
+    from inspections.models import Platform
+
+    from . import fleet_recompute
+
+    return fleet_recompute.platform_pool_fast(platform=Platform.objects.get(pk=platform_id))
 
 
 @shared_task(name="analytics.tasks.make_owner_report", acks_late=True, **RETRY)

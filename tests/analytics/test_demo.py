@@ -67,3 +67,28 @@ def test_make_demo_run_twice_keeps_the_existing_demo(capsys):
     call_command("build_demo", "--password", "pw-x", "--if-missing")
     assert Vehicle.objects.count() == before
     assert "kept" in capsys.readouterr().out
+
+
+def test_a_demo_with_new_records_can_still_be_reset(mailoutbox):
+    import datetime as dt
+
+    from inspections import services as records
+    from inspections.models import AlignmentSession
+    from tests import factories as f
+
+    build_small()
+    from django.contrib.auth import get_user_model
+
+    tech = get_user_model().objects.get(username="demo-tech")
+    car = Vehicle.objects.visible_to(tech).first()
+    last = max(AlignmentSession.objects.filter(vehicle=car).values_list("odometer_km", flat=True))
+    records.session_submit(vehicle=car, technician=tech, measured_at=f.at(0), odometer_km=last + 10,
+                           kind="as_found", equipment_id="RIG", readings=f.readings(),
+                           equipment_calibrated_on=dt.date.today() - dt.timedelta(days=30))
+    services.demo_delete()  # the new session's audit entry goes with the demo
+    assert not Vehicle.objects.filter(is_demo=True).exists()
+
+
+def test_building_the_demo_mails_no_owner_reports(mailoutbox):
+    call_command("build_demo", "--password", "pw-x")
+    assert mailoutbox == []

@@ -37,7 +37,8 @@ class Command(BaseCommand):
             self.stdout.write("Demo data built (invented scenario, labelled demo): " + ", ".join(
                 f"{v} {k}" for k, v in counts.items()))
         if not no_analysis:
-            n = services.fleet_recompute()
+            with services.owner_notifications_paused():  # no PDFs mailed for a fresh demo
+                n = services.fleet_recompute()
             self.stdout.write(f"Analysed {n} vehicles.")
         self.stdout.write("Sign in at http://127.0.0.1:8000/ as:")
         for user, role in [("demo-tech", "technician, Eastgate Service Bay"),

@@ -1,0 +1,1308 @@
+"""Vectorised fleet recompute: whole platforms at once, chunks of vehicles shared by workers.
+
+The per-vehicle path (:func:`analytics.analysis.analyse`) stays the reference; this module gives
+the same payload and advice for many vehicles at once:
+
+1. **Read** — one ``COPY (SELECT …) TO STDOUT`` per table per chunk (readings joined to their
+   current sessions, component checks, service events, and the input keys), straight into pandas.
+2. **Drift** — every vehicle × corner × angle of the chunk as one NaN-padded stack (shape
+   ``(series, readings)``, km and deg): Sen's slopes by :func:`~analytics.core.drift.theil_sen_stack`,
+   the CUSUM step screen vectorised over the stack; the few series where the screen signals a step
+   are fitted by the core's own :func:`~analytics.core.drift.fit_drift` (exactly the per-vehicle
+   computation). Shrinkage toward the platform's pooled rate and the forecast crossings of the
+   tolerance band (grid + bisection, the arithmetic of :func:`~analytics.core.drift.forecast_crossing`)
+   are vectorised over all series.
+3. **Wear** — ball-joint play lines and log-stiffness decay lines, stacked the same way; the
+   stiffness criterion (cornering toe change of the outer rear wheel turning toe-out) is built
+   once per platform corner and evaluated over all vehicles' bands at once.
+4. **Compliance** — each platform's corner files are parsed once, and the load-case comparison
+   is computed once per distinct measured condition (cache keyed by the link conditions).
+5. **Advice** — :func:`analytics.core.advice.advise` per vehicle (pure Python, cheap).
+6. **Write** — ``AnalysisResult`` rows with ``bulk_create(ignore_conflicts=True)`` on the unique
+   (vehicle, input key, model version): a rerun, or a concurrent run, writes once; advice rows
+   with ``bulk_create`` only for results this run inserted.
+
+Units: odometer km, angles deg, play mm, stiffness N/mm, slopes deg/km (payload deg/10 000 km).
+"""
+from __future__ import annotations
+
+import datetime as dt
+import io
+import logging
+import math
+import time
+from dataclasses import asdict, dataclass, field
+from types import SimpleNamespace
+from zoneinfo import ZoneInfo
+
+import numpy as np
+import pandas as pd
+from django.db import connection, transaction
+from django.db.models import Exists, OuterRef
+from django.utils import timezone
+
+from analytics.core import advice as adv
+from analytics.core import corner_from_dict, mirror_corner
+from analytics.core.advice import MODEL_VERSION, SEVERITIES
+from analytics.core.condition import LinkCondition, measured_corner
+from analytics.core.cusum import CUSUM_H, CUSUM_K
+from analytics.core.drift import (
+    DEFAULT_CONFIDENCE,
+    DRIFT_MODEL,
+    FORECAST_GRID_POINTS,
+    MAD_TO_SD,
+    STEP_DIFF_CLIP,
+    STEP_WARMUP_READINGS,
+    CrossingForecast,
+    _km_to_date,
+    _z,
+    fit_drift,
+    theil_sen_stack,
+)
+from analytics.core.wear import BAND_SAMPLES, PLAY_MODEL, StiffnessCriterion, forecast_play
+from inspections.models import Platform, Vehicle
+from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
+
+from . import analysis
+from .analysis import ANGLES, ASSUMPTIONS, HORIZON_KM, REPEATABILITY, advice_json
+from .models import AdviceItem, AnalysisResult, PooledRate
+
+log = logging.getLogger(__name__)
+
+__all__ = ["CHUNK_VEHICLES", "ChunkStats", "chunks", "fleet_recompute", "recompute_chunk"]
+
+#: Vehicles per chunk: one Celery task; ≈ 0.1 GiB of frames at 100 readings per vehicle.
+CHUNK_VEHICLES: int = 1000
+CORNERS = ("FL", "FR", "RL", "RR")
+BISECTIONS = 40  # = analytics.core.drift.CROSSING_BISECTIONS
+Z95 = _z(DEFAULT_CONFIDENCE)
+EPOCH = dt.date(1970, 1, 1)
+TOE_OUT_LABEL = StiffnessCriterion.toe_out(np.asarray).label
+
+
+@dataclass
+class ChunkStats:
+    """What one chunk did and where its time went (seconds)."""
+
+    vehicles: int = 0
+    analysed: int = 0
+    written: int = 0
+    fallback_series: int = 0
+    fallback_vehicles: int = 0
+    seconds: dict = field(default_factory=dict)
+
+
+# --------------------------------------------------------------------------- reading
+
+
+def _copy_frame(sql: str, params: list, dtypes: dict | None = None) -> pd.DataFrame:
+    """``COPY (sql) TO STDOUT (FORMAT csv, HEADER)`` into a DataFrame."""
+    buf = io.BytesIO()
+    with connection.cursor() as cur:
+        raw = cur.cursor  # the psycopg cursor
+        with raw.copy(f"COPY ({sql}) TO STDOUT (FORMAT csv, HEADER)", params) as cp:
+            for block in cp:
+                buf.write(block)
+    buf.seek(0)
+    return pd.read_csv(buf, dtype=dtypes, keep_default_na=False, na_values=[""])
+
+
+READINGS_SQL = """
+SELECT s.vehicle_id, r.session_id, s.measured_at, s.odometer_km, s.kind, r.corner,
+       r.toe_deg, r.camber_deg, r.caster_deg
+FROM inspections_wheelreading r JOIN inspections_alignmentsession s ON s.id = r.session_id
+WHERE s.vehicle_id = ANY(%s)
+  AND NOT EXISTS (SELECT 1 FROM inspections_alignmentsession n WHERE n.supersedes_id = s.id)
+ORDER BY s.vehicle_id, s.measured_at, r.session_id, r.corner"""
+CHECKS_SQL = """
+SELECT c.vehicle_id, c.id, c.checked_at, c.odometer_km, c.corner, c.part, c.play_mm,
+       c.deflection_mm, c.deflection_force_n, c.findings, c.verdict, c.defect_category
+FROM inspections_componentcheck c
+WHERE c.vehicle_id = ANY(%s)
+  AND NOT EXISTS (SELECT 1 FROM inspections_componentcheck n WHERE n.supersedes_id = c.id)
+ORDER BY c.vehicle_id, c.checked_at, c.id"""
+EVENTS_SQL = """
+SELECT e.vehicle_id, e.performed_at, e.odometer_km, e.kind, e.corner, e.part, e.reason
+FROM inspections_serviceevent e WHERE e.vehicle_id = ANY(%s)
+ORDER BY e.vehicle_id, e.performed_at, e.id"""
+KEYS_SQL = """
+SELECT v.id AS vehicle_id,
+  COALESCE((SELECT max(id) FROM inspections_alignmentsession s WHERE s.vehicle_id = v.id), 0) AS s,
+  COALESCE((SELECT max(id) FROM inspections_componentcheck c WHERE c.vehicle_id = v.id), 0) AS c,
+  COALESCE((SELECT max(id) FROM inspections_serviceevent e WHERE e.vehicle_id = v.id), 0) AS e
+FROM inspections_vehicle v WHERE v.id = ANY(%s)"""
+
+
+def _ns(col: pd.Series) -> np.ndarray:
+    """UTC timestamps (text from COPY) → int64 ns since the epoch."""
+    idx = pd.DatetimeIndex(pd.to_datetime(col, utc=True, format="ISO8601")).tz_localize(None)
+    return idx.as_unit("ns").asi8
+
+
+def _local_day(ns: np.ndarray, tz_of_row: np.ndarray) -> np.ndarray:
+    """int64 ns (UTC) → local calendar day number (days since 1970-01-01) in each row's zone."""
+    out = np.empty(ns.size, dtype=np.int64)
+    for tz in np.unique(tz_of_row):
+        m = tz_of_row == tz
+        local = pd.DatetimeIndex(ns[m]).tz_localize("UTC").tz_convert(tz).tz_localize(None)
+        out[m] = local.to_numpy().astype("datetime64[D]").astype(np.int64)
+    return out
+
+
+def _day(n: int) -> dt.date:
+    return EPOCH + dt.timedelta(days=int(n))
+
+
+def input_keys(vehicle_ids: list[int], platform_stamp: int) -> dict[int, str]:
+    """The :func:`analytics.inputs.input_key` of many vehicles in one query."""
+    k = _copy_frame(KEYS_SQL, [vehicle_ids])
+    return {int(v): f"s{s}.c{c}.e{e}.p{platform_stamp}"
+            for v, s, c, e in k[["vehicle_id", "s", "c", "e"]].itertuples(index=False)}
+
+
+def _platform_stamp(platform_id: int) -> int:
+    from django.db.models import Max
+
+    p = PooledRate.objects.filter(platform_id=platform_id).aggregate(m=Max("computed_at"))["m"]
+    return int(p.timestamp()) if p else 0
+
+
+# --------------------------------------------------------------------------- stacks
+
+
+def _stack(group: np.ndarray, pos: np.ndarray, values: np.ndarray, groups: int, width: int):
+    out = np.full((groups, max(width, 1)), np.nan)
+    out[group, pos] = values
+    return out
+
+
+def _sorted_median(a: np.ndarray) -> np.ndarray:
+    """Row medians of a NaN-padded (m, n) array, as ``np.median`` of each row's values."""
+    s = np.sort(a, axis=1)
+    cnt = np.isfinite(a).sum(axis=1)
+    lo = np.clip((cnt - 1) // 2, 0, None)
+    hi = np.clip(cnt // 2, 0, None)
+    rows = np.arange(a.shape[0])
+    w = a.shape[1] - 1
+    med = 0.5 * (s[rows, np.minimum(lo, w)] + s[rows, np.minimum(hi, w)])
+    return np.where(cnt > 0, med, np.nan)
+
+
+def _robust_sd_rows(r: np.ndarray) -> np.ndarray:
+    med = _sorted_median(r)
+    return MAD_TO_SD * _sorted_median(np.abs(r - med[:, None]))
+
+
+@dataclass
+class LineFits:
+    """Theil–Sen fits of a stack of current-segment series, fields shape ``(m,)``."""
+
+    slope: np.ndarray
+    slope_se: np.ndarray
+    slope_low: np.ndarray
+    slope_high: np.ndarray
+    x_ref: np.ndarray
+    y_ref: np.ndarray
+    residual_sd: np.ndarray
+    sxx: np.ndarray
+    n: np.ndarray
+    ok: np.ndarray  # two or more distinct x
+
+
+def _line_fits(X: np.ndarray, Y: np.ndarray, msd: np.ndarray) -> LineFits:
+    """``fit_drift(find_steps=False)`` on already-segmented NaN-padded rows (km, y-units)."""
+    ts = theil_sen_stack(X, Y)
+    valid = np.isfinite(X)
+    n = valid.sum(axis=1)
+    xmax = np.nanmax(np.where(valid, X, -np.inf), axis=1)
+    xmin = np.nanmin(np.where(valid, X, np.inf), axis=1)
+    ok = (n >= 2) & (xmax > xmin)
+    resid = Y - (ts.intercept[:, None] + ts.slope[:, None] * X)
+    rsd = np.where(n > 2, _robust_sd_rows(resid), 0.0)
+    rsd = np.maximum(np.nan_to_num(rsd, nan=0.0), msd)
+    xbar = np.nansum(X, axis=1) / np.maximum(n, 1)
+    sxx = np.nansum((X - xbar[:, None]) ** 2, axis=1)
+    se = np.maximum((ts.slope_high - ts.slope_low) / (2.0 * Z95), 0.0)
+    return LineFits(ts.slope, se, ts.slope_low, ts.slope_high, ts.x_ref, ts.y_ref, rsd, sxx, n, ok)
+
+
+def _step_screen(X: np.ndarray, Y: np.ndarray, slope0: np.ndarray, msd: np.ndarray) -> np.ndarray:
+    """Whether the core's CUSUM step detector would signal on each row (bool, shape ``(m,)``).
+
+    Mirrors ``fit_drift``'s first pass: σ from detrended successive differences, standardised
+    recursive residuals from the segment start, a two-sided tabular CUSUM (k, h in σ units).
+    """
+    m, w = X.shape
+    n = np.isfinite(X).sum(axis=1)
+    eligible = n > STEP_WARMUP_READINGS
+    if not eligible.any() or w <= STEP_WARMUP_READINGS:
+        return np.zeros(m, dtype=bool)
+    d = np.diff(Y, axis=1) - slope0[:, None] * np.diff(X, axis=1)  # NaN past each row's end
+    d = d - _sorted_median(d)[:, None]
+    robust = _robust_sd_rows(d)
+    keep = np.isfinite(d) & ((robust[:, None] <= 0) | (np.abs(d) <= STEP_DIFF_CLIP * robust[:, None]))
+    cnt = keep.sum(axis=1)
+    ms = np.where(keep, d, 0.0) ** 2
+    sigma = np.sqrt(ms.sum(axis=1) / np.maximum(cnt, 1)) / math.sqrt(2.0)
+    sigma = np.maximum(np.where(n >= 3, sigma, 0.0), msd)
+    # recursive residuals: reading i predicted from readings 0..i-1 (i ≥ warm-up)
+    Xz, Yz = np.nan_to_num(X), np.nan_to_num(Y)
+    cols = np.arange(w)
+    targets = np.arange(STEP_WARMUP_READINGS, w)
+    mask = cols[None, :] < targets[:, None]  # (p, w)
+    L = targets.astype(float)
+    xs = np.where(mask[None], Xz[:, None, :], 0.0)  # (m, p, w)
+    ys = np.where(mask[None], Yz[:, None, :], 0.0)
+    xbar = xs.sum(axis=2) / L
+    ybar = ys.sum(axis=2) / L
+    dxm = np.where(mask[None], xs - xbar[..., None], 0.0)
+    sxx = np.sum(dxm**2, axis=2)
+    sxy = np.sum(dxm * (ys - ybar[..., None]), axis=2)
+    has = sxx > 0
+    safe = np.where(has, sxx, 1.0)
+    b = np.where(has, sxy / safe, 0.0)
+    xt, yt = Xz[:, targets], Yz[:, targets]
+    pred = ybar + b * (xt - xbar)
+    lever = np.where(has, (xt - xbar) ** 2 / safe, 0.0)
+    sd = sigma[:, None] * np.sqrt(1.0 + 1.0 / L[None, :] + lever)
+    z = (yt - pred) / np.where(sd > 0, sd, 1.0)
+    live = targets[None, :] < n[:, None]
+    cp = np.zeros(m)
+    cm = np.zeros(m)
+    alarm = np.zeros(m, dtype=bool)
+    for j in range(targets.size):
+        zj = np.where(live[:, j], z[:, j], 0.0)
+        cp = np.where(live[:, j], np.maximum(0.0, zj - CUSUM_K + cp), cp)
+        cm = np.where(live[:, j], np.maximum(0.0, -zj - CUSUM_K + cm), cm)
+        alarm |= live[:, j] & ((cp > CUSUM_H) | (cm > CUSUM_H))
+    return alarm & eligible & (sigma > 0)
+
+
+# --------------------------------------------------------------------------- crossings
+
+
+def _band(x, slope, se, xref, yref, rsd, n):
+    centre = yref + slope * (x - xref)
+    half = Z95 * np.sqrt(rsd**2 * (1.0 + 1.0 / n) + se**2 * (x - xref) ** 2)
+    return centre - half, centre, centre + half
+
+
+def _first_true_vec(grid: np.ndarray, flags: np.ndarray, fn, cur: np.ndarray) -> np.ndarray:
+    """Per row: the first x where ``fn`` holds (grid, then bisection); NaN where never."""
+    anyf = flags.any(axis=1)
+    i = np.argmax(flags, axis=1)
+    out = np.full(grid.shape[0], np.nan)
+    at0 = anyf & (i == 0)
+    out[at0] = cur[at0]
+    rows = np.nonzero(anyf & (i > 0))[0]
+    if rows.size:
+        a = grid[rows, i[rows] - 1].copy()
+        b = grid[rows, i[rows]].copy()
+        for _ in range(BISECTIONS):
+            mid = 0.5 * (a + b)
+            hit = fn(mid, rows)
+            b = np.where(hit, mid, b)
+            a = np.where(hit, a, mid)
+        out[rows] = b
+    return out
+
+
+def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
+    """Vectorised :func:`~analytics.core.drift.forecast_crossing` (all arguments shape ``(m,)``;
+    ``lower``/``upper`` ±inf for no limit). Returns ``(early, likely, late, side_upper)`` with
+    NaN for "not within the horizon"."""
+    P = (slope, se, xref, yref, rsd, n)
+
+    def sub(rows):
+        return [p[rows] for p in P]
+
+    def any_out(x, rows):
+        lo, _, hi = _band(x, *sub(rows))
+        return (hi > upper[rows]) | (lo < lower[rows])
+
+    def mid_out(x, rows):
+        _, c, _ = _band(x, *sub(rows))
+        return (c > upper[rows]) | (c < lower[rows])
+
+    def all_out(x, rows):
+        lo, _, hi = _band(x, *sub(rows))
+        return (lo > upper[rows]) | (hi < lower[rows])
+
+    grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
+    lo, c, hi = _band(grid, *[p[:, None] for p in P])
+    up, low = upper[:, None], lower[:, None]
+    early = _first_true_vec(grid, (hi > up) | (lo < low), any_out, current)
+    likely = _first_true_vec(grid, (c > up) | (c < low), mid_out, current)
+    late = _first_true_vec(grid, (lo > up) | (hi < low), all_out, current)
+    e = np.where(np.isfinite(early), early, current)
+    blo, _, bhi = _band(e, *P)
+    side_upper = (bhi - upper) >= (lower - blo)
+    return early, likely, late, side_upper
+
+
+def _opt(v: float) -> float | None:
+    return None if not np.isfinite(v) else float(v)
+
+
+def _forecast(early, likely, late, side, *, current_km, current_date, km_per_day, horizon_end,
+              model, side_word=None, notes=None, time_dates=None) -> CrossingForecast:
+    """A :class:`CrossingForecast` as :func:`~analytics.core.drift.forecast_drift` builds it;
+    ``time_dates``: the (early, likely, late) dates of the fit over time, the earlier date wins."""
+    e, li, la = _opt(early), _opt(likely), _opt(late)
+    if li is not None and li == current_km:
+        status = "out_now"
+    elif e is not None:
+        status = "crossing"
+    else:
+        status = "not_within_horizon"
+    if notes is None:
+        notes = () if (km_per_day is not None and km_per_day > 0) else (
+            "no usable daily-distance rate: dates come only from a fit over time",)
+    if side_word is None:
+        side_word = None if e is None else ("upper" if side else "lower")
+    dates = [_km_to_date(v, current_km, current_date, km_per_day) for v in (e, li, la)]
+    if time_dates is not None:
+        dates = [b if a is None else a if b is None else min(a, b)
+                 for a, b in zip(dates, time_dates, strict=True)]
+        if status == "not_within_horizon" and dates[0] is not None:
+            status = "crossing"
+    return CrossingForecast(
+        status=status, side=side_word, early_km=e, likely_km=li, late_km=la,
+        early_date=dates[0], likely_date=dates[1], late_date=dates[2],
+        horizon_km=horizon_end, model=model, notes=notes)
+
+
+# --------------------------------------------------------------------------- platform caches
+
+
+class PlatformCache:
+    """What is the same for every vehicle of a platform: corners, specs, limits, pooled rates,
+    stiffness → toe criteria, and compliance results per distinct measured condition."""
+
+    def __init__(self, platform: Platform):
+        self.platform = platform
+        self.data_like = SimpleNamespace(vehicle=SimpleNamespace(platform=platform))
+        self.pooled = {(p.corner, p.angle): p for p in platform.pooled_rates.all()}
+        self.specs = {(s.axle, s.quantity): s for s in platform.specs.all()}
+        self.limits = {lim.part: lim for lim in platform.limits.all()}
+        geo = {c.axle: c.geometry for c in platform.corners.all()}
+        self.new = {}
+        for pos in CORNERS:
+            g = geo.get(CORNER_AXLE[pos])
+            if g is None:
+                continue
+            left = corner_from_dict(g)
+            self.new[pos] = left if CORNER_SIDE[pos] == "left" else mirror_corner(left)
+        self._toe_fn: dict = {}
+        self._compliance: dict = {}
+        self.compliance_misses = 0
+
+    def toe_fn(self, pos: str, link: str):
+        key = (pos, link)
+        if key not in self._toe_fn:
+            self._toe_fn[key] = analysis._toe_change_of_stiffness(self.data_like, self.new[pos],
+                                                                 pos, link)
+        return self._toe_fn[key]
+
+    def compliance(self, pos: str, conds: tuple):
+        """(payload entry, verdicts, conditions_used) for one position and condition key."""
+        key = (pos, conds)
+        hit = self._compliance.get(key)
+        if hit is None:
+            self.compliance_misses += 1
+            new = self.new[pos]
+            cd = {name: LinkCondition(*vals) for name, vals in conds}
+            meas = measured_corner(new, cd) if cd else new
+            out, verdicts = analysis._compliance(self.data_like, {pos: new}, {pos: meas})
+            hit = (out[pos], tuple(verdicts), {k: asdict(v) for k, v in cd.items()})
+            self._compliance[key] = hit
+        return hit
+
+
+_CACHES: dict[int, tuple[str, PlatformCache]] = {}
+
+
+def _fingerprint(platform: Platform) -> str:
+    """Everything the caches depend on: the platform's values, specs, limits, corner files and
+    pooled rates (a long-lived worker notices an edited spec or a refreshed pooled rate)."""
+    import json
+
+    parts = [
+        {f.attname: getattr(platform, f.attname) for f in platform._meta.concrete_fields},
+        sorted(platform.specs.values_list("axle", "quantity", "nominal_deg", "tolerance_deg",
+                                          "source")),
+        sorted(platform.limits.values_list("part", "max_play_mm", "refused_findings", "source")),
+        sorted(platform.corners.values_list("axle", "geometry", "source"), key=lambda r: r[0]),
+        sorted(platform.pooled_rates.values_list("corner", "angle", "mean", "mean_se", "tau2",
+                                                 "vehicles", "method", "computed_at")),
+    ]
+    return json.dumps(parts, default=str, sort_keys=True)
+
+
+def platform_cache(platform_id: int) -> PlatformCache:
+    """A process-local cache of the platform, rebuilt when anything it depends on changed."""
+    platform = Platform.objects.get(pk=platform_id)
+    key = _fingerprint(platform)
+    hit = _CACHES.get(platform_id)
+    if hit is None or hit[0] != key:
+        hit = (key, PlatformCache(platform))
+        _CACHES[platform_id] = hit
+    return hit[1]
+
+
+# --------------------------------------------------------------------------- the chunk
+
+
+def _conditions(latest: list[tuple], new) -> tuple:
+    """Link conditions of one corner from its latest check per part (as ``_corner_models``).
+
+    ``latest``: ``(part, play_mm, deflection_mm, deflection_force_n, findings)`` in check order.
+    """
+    conds: dict[str, LinkCondition] = {}
+    for code, play_mm, deflection_mm, force_n, c_findings in latest:
+        part = PARTS_BY_CODE.get(code)
+        if part is None:
+            continue
+        findings = [f for f in c_findings if f != "none"]
+        for link in part.links:
+            if link not in new.link_names:
+                continue
+            prev = conds.get(link, LinkCondition())
+            defl = analysis._f(deflection_mm)
+            if part.kind == "bush" and defl and deflection_mm > 0:
+                prev = LinkCondition(test_force_N=float(force_n), deflection_mm=float(deflection_mm),
+                                     ball_joint_play_mm=prev.ball_joint_play_mm)
+            elif part.kind == "bush" and findings:
+                prev = LinkCondition(finding=findings[0], ball_joint_play_mm=prev.ball_joint_play_mm)
+            if part.kind == "ball_joint" and analysis._f(play_mm) is not None:
+                prev = LinkCondition(prev.test_force_N, prev.deflection_mm, prev.finding,
+                                     float(play_mm))
+            conds[link] = prev
+    return tuple((k, (v.test_force_N, v.deflection_mm, v.finding, v.ball_joint_play_mm))
+                 for k, v in conds.items())
+
+
+def _flags_between(group_keys, times, adjust_group, adjust_times) -> np.ndarray:
+    """For each reading (sorted by group, then time): an adjustment of its group in
+    (previous reading's time, this reading's time]. Keys are (group, dense time rank)."""
+    if not len(times):
+        return np.zeros(0, dtype=bool)
+    all_t = np.concatenate([times, adjust_times])
+    uniq, rank = np.unique(all_t, return_inverse=True)
+    rbits = max(int(uniq.size).bit_length(), 1)
+    gr = np.unique(np.concatenate([group_keys, adjust_group]), return_inverse=True)[1]
+    gk = gr[:len(group_keys)].astype(np.int64) << rbits
+    ak = np.sort((gr[len(group_keys):].astype(np.int64) << rbits) + rank[len(times):])
+    rk = gk + rank[:len(times)]
+    upto = np.searchsorted(ak, rk, side="right")
+    prev = np.roll(upto, 1)
+    flags = (upto - prev) > 0
+    first = np.r_[True, group_keys[1:] != group_keys[:-1]]
+    flags[first] = False
+    return flags
+
+
+def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = None):
+    """Current-segment stacks of every (vehicle, corner) of as-found readings.
+
+    ``found``: as-found readings (vehicle_id, corner, t, odometer_km, toe_deg, camber_deg, day);
+    ``adj``: (vehicle_id, t) of adjustments. Returns a dict with the group keys
+    (``vehicle_id·4 + corner index``), the rows per group, the fits and step-screen alarms per
+    angle, each group's segment start and whether its odometer goes backwards. With ``day0``
+    (vehicle → today's local day number) also the fits over time (days before today ≤ 0).
+    """
+    found = found.sort_values(["vehicle_id", "corner", "t"], kind="stable")
+    vc = found["vehicle_id"].to_numpy() * 4 + found["corner"].map(
+        {c: i for i, c in enumerate(CORNERS)}).to_numpy()
+    # an adjustment belongs to every corner of its vehicle: compare on the vehicle
+    flags = _flags_between(found["vehicle_id"].to_numpy(), found["t"].to_numpy(),
+                           adj["vehicle_id"].to_numpy(), adj["t"].to_numpy())
+    first = np.r_[True, vc[1:] != vc[:-1]] if vc.size else np.zeros(0, bool)
+    flags[first] = False
+    found = found.assign(vc=vc, flag=flags)
+    found = found.assign(seg=found.groupby("vc")["flag"].cumsum(),
+                         idx=found.groupby("vc").cumcount())
+    found = found.assign(last=found.groupby("vc")["seg"].transform("max"),
+                         ntot=found.groupby("vc")["idx"].transform("size"))
+    found = found[found["ntot"] >= 2]
+    cur = found[found["seg"] == found["last"]]
+    if cur.empty:
+        return dict(keys=np.zeros(0, dtype=np.int64), found=found, fits={}, alarms={}, seg={},
+                    x_dec={}, day_fits={})
+    keys = pd.unique(cur["vc"])
+    gmap = {k: i for i, k in enumerate(keys)}
+    g = cur["vc"].map(gmap).to_numpy()
+    seg_start = cur.groupby("vc")["idx"].min()
+    pos = cur["idx"].to_numpy() - seg_start.loc[cur["vc"]].to_numpy()
+    W = int(pos.max()) + 1 if pos.size else 1
+    X = _stack(g, pos, cur["odometer_km"].to_numpy(float), len(keys), W)
+    XD = None
+    if day0 is not None:
+        d0 = cur["vehicle_id"].map(day0).to_numpy()
+        XD = _stack(g, pos, (cur["day"].to_numpy() - d0).astype(float), len(keys), W)
+    fits, alarms, day_fits = {}, {}, {}
+    for angle in ANGLES:
+        Y = _stack(g, pos, cur[f"{angle}_deg"].to_numpy(float), len(keys), W)
+        msd = np.full(len(keys), REPEATABILITY[angle])
+        fits[angle] = f = _line_fits(X, Y, msd)
+        alarms[angle] = _step_screen(X, Y, f.slope, msd) & f.ok
+        if XD is not None:
+            day_fits[angle] = _line_fits(XD, Y, msd)
+    x_dec = (found.groupby("vc")["odometer_km"].diff() < 0).groupby(found["vc"]).any()
+    return dict(keys=keys, found=found, fits=fits, alarms=alarms, seg=seg_start.to_dict(),
+                x_dec=x_dec.to_dict(), day_fits=day_fits)
+
+
+def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | None = None,
+                  stats: ChunkStats | None = None) -> dict[int, tuple[dict, list]]:
+    """Payload and advice of each vehicle of one platform chunk: ``{vehicle_id: (payload, advice)}``.
+
+    ``only``: analyse just these vehicles (others are skipped). Pure reads; nothing is written.
+    """
+    st = stats or ChunkStats()
+    T = st.seconds
+    t0 = time.perf_counter()
+    cache = platform_cache(platform_id)
+    platform = cache.platform
+    ids = sorted(set(vehicle_ids) if only is None else set(vehicle_ids) & only)
+    if not ids:
+        return {}
+    vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=ids, platform_id=platform_id)
+                .select_related("workshop")}
+    ids = [i for i in ids if i in vehicles]
+    for v in vehicles.values():
+        v.platform = platform
+    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
+    ck = _copy_frame(CHECKS_SQL, [ids], dtypes={"corner": str, "part": str, "findings": str,
+                                                "verdict": str, "defect_category": str})
+    ev = _copy_frame(EVENTS_SQL, [ids], dtypes={"kind": str, "corner": str, "part": str,
+                                                "reason": str})
+    T["read"] = T.get("read", 0) + time.perf_counter() - t0
+    t1 = time.perf_counter()
+
+    tz_of = {vid: vehicles[vid].workshop.time_zone for vid in ids}
+    now = timezone.now()
+    today_of = {vid: timezone.localtime(now, ZoneInfo(tz)).date() for vid, tz in tz_of.items()}
+    for frame, col in ((rd, "measured_at"), (ck, "checked_at"), (ev, "performed_at")):
+        frame["t"] = _ns(frame[col]) if len(frame) else np.empty(0, np.int64)
+        tzs = frame["vehicle_id"].map(tz_of).to_numpy(dtype=object).astype(str) if len(frame) else \
+            np.empty(0, str)
+        frame["day"] = _local_day(frame["t"].to_numpy(), tzs) if len(frame) else np.empty(0, np.int64)
+    for col in ("corner", "part", "reason"):
+        ev[col] = ev[col].fillna("")
+    ck["defect_category"] = ck["defect_category"].fillna("")
+    ck["findings"] = [__import__("json").loads(s) for s in ck["findings"]]
+
+    # ---- per-vehicle scalars: odometer now, km per day, last marks
+    odo = {}
+    for frame in (rd, ck, ev):
+        if len(frame):
+            for vid, m in frame.groupby("vehicle_id")["odometer_km"].max().items():
+                odo[vid] = max(odo.get(vid, 0.0), float(m))
+    sess = rd.drop_duplicates("session_id")
+    kmpd: dict[int, float | None] = {}
+    bad: set[int] = set()  # vehicles sent to the per-vehicle path
+    if len(sess):
+        sess = sess.assign(g=sess["vehicle_id"].map({v: i for i, v in enumerate(ids)}))
+        sess = sess.assign(pos=sess.groupby("g").cumcount())
+        cnt = sess.groupby("g").size()
+        G = len(ids)
+        W = int(cnt.max())
+        today_day = np.array([(today_of[v] - EPOCH).days for v in ids])
+        D = _stack(sess["g"].to_numpy(), sess["pos"].to_numpy(),
+                   (sess["day"].to_numpy() - today_day[sess["g"].to_numpy()]).astype(float), G, W)
+        odo_stack = _stack(sess["g"].to_numpy(), sess["pos"].to_numpy(),
+                   sess["odometer_km"].to_numpy(float), G, W)
+        ts = theil_sen_stack(D, odo_stack)
+        # the core refuses an odometer going backwards in time or one distinct day
+        so = sess.sort_values(["g", "day"], kind="stable")
+        back = (so.groupby("g")["odometer_km"].diff() < 0).groupby(so["g"]).any()
+        nd = sess.groupby("g")["day"].nunique()
+        for g, vid in enumerate(ids):
+            n = int(cnt.get(g, 0))
+            if n < 2:
+                kmpd[vid] = None
+                continue
+            if bool(back.get(g, False)) or int(nd.get(g, 0)) < 2:
+                bad.add(vid)
+                continue
+            kmpd[vid] = float(ts.slope[g]) if ts.slope[g] > 0 else None
+    T["prepare"] = T.get("prepare", 0) + time.perf_counter() - t1
+    t2 = time.perf_counter()
+
+    # ---- drift: vehicle × corner × angle stacks of the current segment
+    drift: dict[int, dict] = {v: {} for v in ids}
+    drift_fc: dict[int, list] = {v: [] for v in ids}
+    steps_of: dict[int, list] = {v: [] for v in ids}
+    found = rd[rd["kind"] == "as_found"]
+    adj_s = rd.loc[rd["kind"] == "as_adjusted", ["vehicle_id", "t"]].drop_duplicates()
+    adj_e = ev.loc[ev["kind"] == "alignment_adjusted", ["vehicle_id", "t"]]
+    adj = pd.concat([adj_s, adj_e])
+    if len(found):
+        ds = _drift_stacks(found, adj, {v: (today_of[v] - EPOCH).days for v in ids})
+        keys, found, fits, alarms = ds["keys"], ds["found"], ds["fits"], ds["alarms"]
+        seg_of, x_dec = ds["seg"], ds["x_dec"]
+        # series entries; shrink + forecast collected for one vectorised pass
+        pend = []  # (vid, corner, angle, slope, se, xref, yref, rsd, n, sampling variance)
+        fb_rows = {k: None for k in keys}
+        for gi, k in enumerate(keys):
+            vid, corner = int(k // 4), CORNERS[int(k % 4)]
+            if vid in bad:
+                continue
+            if bool(x_dec.get(k, False)):
+                bad.add(vid)
+                continue
+            for angle in ANGLES:
+                f = fits[angle]
+                key = f"{corner}.{angle}"
+                if alarms[angle][gi]:
+                    st.fallback_series += 1
+                    if fb_rows[k] is None:
+                        fb_rows[k] = found[found["vc"] == k]
+                    rows = fb_rows[k]
+                    res = _fallback_series(rows, adj, vid, corner, angle, today_of[vid])
+                    drift[vid][key], trend, s = res
+                    _spec_entry(drift[vid][key], cache, corner, angle)
+                    steps_of[vid].extend(s)
+                    if trend is not None:
+                        pend.append((vid, corner, angle, *trend))
+                    continue
+                entry = {"n_used": int(f.n[gi]), "segment_start": int(seg_of[k]), "steps": [],
+                         "slope_deg_per_10k": None}
+                _spec_entry(entry, cache, corner, angle)
+                drift[vid][key] = entry
+                if not f.ok[gi]:
+                    continue
+                var = max(f.slope_se[gi] ** 2, f.residual_sd[gi] ** 2 / f.sxx[gi]) \
+                    if f.sxx[gi] > 0 else math.inf
+                var = var if var > 0 else math.inf
+                entry["slope_deg_per_10k"] = f.slope[gi] * 1e4
+                entry["slope_se_deg_per_10k"] = f.slope_se[gi] * 1e4
+                entry["slope_ci_deg_per_10k"] = [f.slope_low[gi] * 1e4, f.slope_high[gi] * 1e4]
+                fd = ds["day_fits"][angle]
+                day_trend = None
+                if fd.ok[gi]:
+                    day_trend = (float(fd.slope[gi]), float(fd.slope_se[gi]), float(fd.x_ref[gi]),
+                                 float(fd.y_ref[gi]), float(fd.residual_sd[gi]), int(fd.n[gi]))
+                pend.append((vid, corner, angle, float(f.slope[gi]), float(f.slope_se[gi]),
+                             float(f.x_ref[gi]), float(f.y_ref[gi]), float(f.residual_sd[gi]),
+                             int(f.n[gi]), var, day_trend))
+        _shrink_and_forecast(pend, cache, drift, drift_fc, odo, today_of, kmpd)
+    T["drift"] = T.get("drift", 0) + time.perf_counter() - t2
+    t3 = time.perf_counter()
+
+    # ---- wear
+    wear, wear_fc = _wear_chunk(ids, ck, ev, cache, odo, today_of, kmpd, st)
+    T["wear"] = T.get("wear", 0) + time.perf_counter() - t3
+    t4 = time.perf_counter()
+
+    # ---- corner conditions, compliance (cached per condition), findings
+    latest = ck.sort_values(["vehicle_id", "t"], kind="stable").groupby(
+        ["vehicle_id", "corner", "part"]).tail(1)
+    comp: dict[int, tuple] = {}
+    by_pos: dict[int, dict[str, list]] = {}
+    for rec in zip(latest["vehicle_id"].tolist(), latest["corner"].tolist(), latest["part"].tolist(),
+                   latest["play_mm"].tolist(), latest["deflection_mm"].tolist(),
+                   latest["deflection_force_n"].tolist(), latest["findings"].tolist(), strict=True):
+        by_pos.setdefault(rec[0], {}).setdefault(rec[1], []).append(rec[2:])
+    for vid, grp in by_pos.items():
+        out, verdicts, used = {}, [], {}
+        for pos, new in cache.new.items():
+            conds = _conditions(grp.get(pos, []), new)
+            o, vs, u = cache.compliance(pos, conds)
+            out[pos], used[pos] = o, u
+            verdicts.extend(vs)
+        comp[vid] = (out, verdicts, used)
+    empty = None
+    findings = _findings_chunk(latest, ev)
+    T["compliance"] = T.get("compliance", 0) + time.perf_counter() - t4
+    t5 = time.perf_counter()
+
+    # ---- advice per vehicle
+    p = platform
+    a_int = analysis._interval(p.alignment_interval_km, p.alignment_interval_months,
+                               p.sources or {}, "alignment_interval_km", "alignment_interval_months")
+    s_int = analysis._interval(p.suspension_interval_km, p.suspension_interval_months,
+                               p.sources or {}, "suspension_interval_km", "suspension_interval_months")
+    def last_marks(frame: pd.DataFrame) -> dict:
+        if not len(frame):
+            return {}
+        t = frame.sort_values(["vehicle_id", "t"], kind="stable").groupby("vehicle_id").tail(1)
+        return {v: adv.ServiceMark(_day(d), float(o)) for v, d, o in zip(
+            t["vehicle_id"].tolist(), t["day"].tolist(), t["odometer_km"].tolist(), strict=True)}
+
+    last_s, last_c = last_marks(sess), last_marks(ck)
+    results: dict[int, tuple[dict, list]] = {}
+    for vid in ids:
+        if vid in bad:
+            continue
+        v = vehicles[vid]
+        today = today_of[vid]
+        if vid in comp:
+            c_out, c_verdicts, c_used = comp[vid]
+        else:
+            if empty is None:
+                empty = {pos: cache.compliance(pos, ()) for pos in cache.new}
+            c_out = {pos: e[0] for pos, e in empty.items()}
+            c_verdicts = [x for e in empty.values() for x in e[1]]
+            c_used = {pos: e[2] for pos, e in empty.items()}
+        state = adv.VehicleState(
+            vehicle=f"{v.plate} ({v.vin})", today=today, odometer_km=odo.get(vid, 0.0),
+            km_per_day=kmpd.get(vid), last_alignment=last_s.get(vid),
+            last_suspension_inspection=last_c.get(vid),
+            alignment_interval=a_int, suspension_interval=s_int,
+            drift=tuple(drift_fc[vid]), wear=tuple(wear_fc.get(vid, ())),
+            findings=tuple(findings.get(vid, ())), steps=tuple(steps_of[vid]),
+            compliance=tuple(c_verdicts))
+        advice = adv.advise(state)
+        payload = {
+            "model_version": adv.MODEL_VERSION, "today": today.isoformat(),
+            "odometer_km": odo.get(vid, 0.0), "km_per_day": kmpd.get(vid),
+            "drift": drift[vid], "wear": wear.get(vid, {}), "compliance": c_out,
+            "conditions": c_used, "assumptions": ASSUMPTIONS,
+            "advice": [advice_json(a) for a in advice],
+        }
+        results[vid] = (payload, advice)
+    T["advice"] = T.get("advice", 0) + time.perf_counter() - t5
+    # vehicles outside the fast path: the per-vehicle reference (it may refuse the data)
+    for vid in sorted(bad):
+        st.fallback_vehicles += 1
+        from .inputs import vehicle_data
+
+        try:
+            results[vid] = analysis.analyse(vehicle_data(Vehicle.objects.select_related(
+                "platform", "workshop").get(pk=vid)))
+        except ValueError as exc:
+            log.warning("vehicle %s not analysed: %s", vid, exc)
+    st.vehicles += len(vehicle_ids)
+    st.analysed += len(results)
+    return results
+
+
+def _spec_entry(entry: dict, cache: PlatformCache, corner: str, angle: str) -> None:
+    spec = cache.specs.get((CORNER_AXLE[corner], angle))
+    if spec is not None:
+        entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
+                         "source": spec.source}
+
+
+def _fallback_series(rows: pd.DataFrame, adj: pd.DataFrame, vid: int, corner: str, angle: str,
+                     today: dt.date):
+    """The core's own ``fit_drift`` for one series (used where the step screen signals)."""
+    times = rows["t"].to_numpy()
+    at = np.sort(adj.loc[adj["vehicle_id"] == vid, "t"].to_numpy())
+    flags = np.zeros(len(times), dtype=bool)
+    for i in range(1, len(times)):
+        flags[i] = bool(np.any((at > times[i - 1]) & (at <= times[i])))
+    x_km = rows["odometer_km"].to_numpy(float)
+    y = rows[f"{angle}_deg"].to_numpy(float)
+    days = rows["day"].to_numpy()
+    fit = fit_drift(x_km, y, adjusted_before=flags, measurement_sd=REPEATABILITY[angle])
+    entry: dict = {"n_used": fit.n_used, "segment_start": fit.segment_start, "steps": [],
+                   "slope_deg_per_10k": None}
+    steps = []
+    for s in fit.steps:
+        idx = int(s.start_index)
+        before = y[max(fit.segment_start, idx - 3):idx]
+        after = y[idx:idx + 3]
+        size = float(np.median(after) - np.median(before)) if before.size else 0.0
+        on = _day(days[idx])
+        entry["steps"].append({"index": idx, "odometer_km": float(x_km[idx]), "on": on.isoformat(),
+                               "direction": int(s.direction), "size_deg": size})
+        steps.append(adv.ImpactStep(corner=corner, angle=angle, detected_on=on,
+                                    odometer_km=float(x_km[idx]), size_deg=size))
+    if fit.trend is None:
+        return entry, None, steps
+    t = fit.trend
+    entry["slope_deg_per_10k"] = t.slope * 1e4
+    entry["slope_se_deg_per_10k"] = t.slope_se * 1e4
+    if fit.fit is not None:
+        entry["slope_ci_deg_per_10k"] = [fit.fit.slope_low * 1e4, fit.fit.slope_high * 1e4]
+    x_days = (days - (today - EPOCH).days).astype(float)
+    fit_t = fit_drift(x_days[fit.fit_start:], y[fit.fit_start:], measurement_sd=REPEATABILITY[angle],
+                      find_steps=False)
+    td = fit_t.trend
+    day_trend = None if td is None else (td.slope, td.slope_se, td.x_ref, td.y_ref, td.residual_sd,
+                                         td.n)
+    return entry, (t.slope, t.slope_se, t.x_ref, t.y_ref, t.residual_sd, t.n,
+                   fit.sampling_variance, day_trend), steps
+
+
+def _shrink_and_forecast(pend, cache: PlatformCache, drift, drift_fc, odo, today_of, kmpd) -> None:
+    """Shrink toward the pooled rate (as :func:`analytics.core.pooling.shrink_toward`), then the
+    forecast crossing of each series' tolerance band, all series at once."""
+    if not pend:
+        return
+    m = len(pend)
+    slope = np.array([p[3] for p in pend])
+    se = np.array([p[4] for p in pend])
+    xref = np.array([p[5] for p in pend])
+    yref = np.array([p[6] for p in pend])
+    rsd = np.array([p[7] for p in pend])
+    n = np.array([p[8] for p in pend], dtype=float)
+    var = np.array([p[9] for p in pend])
+    lower = np.full(m, np.nan)
+    upper = np.full(m, np.nan)
+    has_spec = np.zeros(m, dtype=bool)
+    for i, (vid, corner, angle, *_rest) in enumerate(pend):
+        entry = drift[vid][f"{corner}.{angle}"]
+        pooled = cache.pooled.get((corner, angle))
+        if pooled is not None and pooled.vehicles >= 3 and math.isfinite(pooled.tau2):
+            var_mu = pooled.mean_se ** 2
+            v = var[i]
+            if not math.isfinite(v):
+                s_slope, s_se, w = pooled.mean, math.sqrt(pooled.tau2 + var_mu), 1.0
+            else:
+                b = v / (v + pooled.tau2) if (v + pooled.tau2) > 0 else 1.0
+                s_slope = pooled.mean + (1.0 - b) * (slope[i] - pooled.mean)
+                s_se, w = math.sqrt((1.0 - b) * v + b * b * var_mu), b
+            slope[i], se[i] = float(s_slope), float(s_se)
+            entry["shrunk_slope_deg_per_10k"] = s_slope * 1e4
+            entry["weight_on_pooled"] = w
+            entry["pooled_deg_per_10k"] = pooled.mean * 1e4
+        entry["trend"] = {"slope": float(slope[i]), "slope_se": float(se[i]), "x_ref": float(xref[i]),
+                          "y_ref": float(yref[i]), "residual_sd": float(rsd[i]), "n": int(n[i])}
+        if pend[i][10] is not None:
+            entry["slope_deg_per_year"] = pend[i][10][0] * 365.25
+        spec = cache.specs.get((CORNER_AXLE[corner], angle))
+        if spec is not None:
+            has_spec[i] = True
+            lower[i], upper[i] = spec.lower_deg, spec.upper_deg
+    rows = np.nonzero(has_spec)[0]
+    if not rows.size:
+        return
+    cur = np.array([odo.get(pend[i][0], 0.0) for i in rows])
+    e, li, la, side = crossings(slope[rows], se[rows], xref[rows], yref[rows], rsd[rows], n[rows],
+                                current=cur, lower=lower[rows], upper=upper[rows],
+                                horizon=np.full(rows.size, HORIZON_KM))
+    # the same drift over time (days before today, today = 0): dates that hold standing still
+    drows = np.array([j for j, i in enumerate(rows) if pend[i][10] is not None], dtype=int)
+    tdates: dict[int, list] = {}
+    if drows.size:
+        dt_ = np.array([pend[rows[j]][10] for j in drows], dtype=float)  # (k, 6)
+        hd = np.array([HORIZON_KM / r if (r := kmpd.get(pend[rows[j]][0])) else 3 * 365.25
+                       for j in drows])
+        de, dl, dla, _ = crossings(*dt_.T, current=np.zeros(drows.size), lower=lower[rows][drows],
+                                   upper=upper[rows][drows], horizon=hd)
+        for q, j in enumerate(drows):
+            today = today_of[pend[rows[j]][0]]
+            tdates[int(j)] = [None if not np.isfinite(v) else today + dt.timedelta(days=math.floor(v))
+                              for v in (de[q], dl[q], dla[q])]
+    for j, i in enumerate(rows):
+        vid, corner, angle = pend[i][:3]
+        spec = cache.specs[(CORNER_AXLE[corner], angle)]
+        fc = _forecast(e[j], li[j], la[j], side[j], current_km=float(cur[j]),
+                       current_date=today_of[vid], km_per_day=kmpd.get(vid),
+                       horizon_end=float(cur[j]) + HORIZON_KM, model=DRIFT_MODEL,
+                       time_dates=tdates.get(j))
+        entry = drift[vid][f"{corner}.{angle}"]
+        entry["forecast"] = analysis._forecast_json(fc)
+        drift_fc[vid].append(adv.DriftForecastInput(corner=corner, angle=angle, forecast=fc))
+
+
+def _segment_stack(rows: pd.DataFrame, rep: pd.DataFrame, value: np.ndarray):
+    """Current segments (since the last replacement of the part) of each (vehicle, corner, part)
+    group of ``rows`` (sorted by group then time) → group keys, starts, X, Y stacks."""
+    gk = rows["gk"].to_numpy()
+    t = rows["t"].to_numpy()
+    if len(rep):
+        flags = _flags_between(gk, t, rep["gk"].to_numpy(), rep["t"].to_numpy())
+    else:
+        flags = np.zeros(len(rows), dtype=bool)
+    first = np.r_[True, gk[1:] != gk[:-1]]
+    flags[first] = False
+    r = rows.assign(flag=flags, val=value)
+    r = r.assign(seg=r.groupby("gk")["flag"].cumsum(), idx=r.groupby("gk").cumcount())
+    r = r[r["seg"] == r.groupby("gk")["seg"].transform("max")]
+    keys = pd.unique(r["gk"])
+    gmap = {k: i for i, k in enumerate(keys)}
+    g = r["gk"].map(gmap).to_numpy()
+    start = r.groupby("gk")["idx"].min()
+    pos = r["idx"].to_numpy() - start.loc[r["gk"]].to_numpy()
+    W = int(pos.max()) + 1 if pos.size else 1
+    X = _stack(g, pos, r["odometer_km"].to_numpy(float), len(keys), W)
+    Y = _stack(g, pos, r["val"].to_numpy(float), len(keys), W)
+    return keys, X, Y
+
+
+def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: ChunkStats):
+    """Ball-joint play and bush stiffness forecasts of every vehicle of the chunk."""
+    wear: dict[int, dict] = {}
+    fcs: dict[int, list] = {}
+    if ck.empty:
+        return wear, fcs
+    ck = ck.sort_values(["vehicle_id", "corner", "part", "t"], kind="stable")
+    part_ix = {p: i for i, p in enumerate(sorted(PARTS_BY_CODE))}
+    ck = ck[ck["part"].isin(part_ix)]
+    cix = {c: i for i, c in enumerate(CORNERS)}
+    ck = ck.assign(gk=(ck["vehicle_id"].to_numpy() * 4 + ck["corner"].map(cix).to_numpy()) * 64
+                   + ck["part"].map(part_ix).to_numpy())
+    rep = ev[(ev["kind"] == "part_replaced") & ev["part"].isin(part_ix) & ev["corner"].isin(cix)]
+    rep = rep.assign(gk=(rep["vehicle_id"].to_numpy() * 4 + rep["corner"].map(cix).to_numpy()) * 64
+                     + rep["part"].map(part_ix).to_numpy())
+    size = ck.groupby("gk")["gk"].transform("size")
+    ck = ck[size >= 2]
+    kinds = ck["part"].map(lambda c: PARTS_BY_CODE[c].kind)
+    play_n = ck["play_mm"].notna().groupby(ck["gk"]).transform("sum")
+    defl_n = ck["deflection_mm"].notna().groupby(ck["gk"]).transform("sum")
+    pending = {}  # gk → (vid, corner, part_code, entry, kind)
+
+    # -- ball joints: play against km, limit from the platform
+    bj = ck[(kinds == "ball_joint") & (play_n >= 2) & ck["play_mm"].notna()]
+    cols = {c: bj[c].to_numpy() for c in ("vehicle_id", "corner", "part", "odometer_km", "play_mm")}
+    for gk, ix in bj.groupby("gk", sort=False).indices.items():
+        i0 = ix[0]
+        code = cols["part"][i0]
+        limit = cache.limits.get(code)
+        entry = {"part": PARTS_BY_CODE[code].label, "kind": "play",
+                 "km": cols["odometer_km"][ix].tolist(), "play_mm": cols["play_mm"][ix].tolist(),
+                 "limit_mm": limit.max_play_mm if limit else None,
+                 "limit_source": limit.source if limit else None}
+        pending[gk] = (int(cols["vehicle_id"][i0]), cols["corner"][i0], code, entry, "play")
+    # -- bushes: log stiffness
+    bu = ck[(kinds == "bush") & (defl_n >= 2)]
+    bu = bu[bu["deflection_mm"].notna() & (bu["deflection_mm"] > 0)]
+    bu = bu.assign(k=bu["deflection_force_n"] / bu["deflection_mm"])
+    cols = {c: bu[c].to_numpy() for c in ("vehicle_id", "corner", "part", "odometer_km", "k")}
+    for gk, ix in bu.groupby("gk", sort=False).indices.items():
+        i0 = ix[0]
+        code = cols["part"][i0]
+        entry = {"part": PARTS_BY_CODE[code].label, "kind": "stiffness",
+                 "km": cols["odometer_km"][ix].tolist(),
+                 "stiffness_N_per_mm": cols["k"][ix].astype(float).tolist()}
+        pending[gk] = (int(cols["vehicle_id"][i0]), cols["corner"][i0], code, entry, "stiffness")
+
+    # -- play forecasts, stacked
+    play_rows = bj[bj["gk"].map(lambda k: (lim := cache.limits.get(pending[k][2])) is not None
+                                and bool(lim.max_play_mm))] if len(bj) else bj
+    play_fc = {}
+    if len(play_rows):
+        keys, X, Y = _segment_stack(play_rows, rep, play_rows["play_mm"].to_numpy(float))
+        f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["play_repeatability_mm"]))
+        xdec = (play_rows.groupby("gk")["odometer_km"].diff() < 0).groupby(play_rows["gk"]).any()
+        good = [i for i, k in enumerate(keys) if f.ok[i] and not xdec.get(k, False)]
+        gi = np.array(good, dtype=int)
+        if gi.size:
+            cur = np.array([odo[pending[keys[i]][0]] for i in gi])
+            lim = np.array([cache.limits[pending[keys[i]][2]].max_play_mm for i in gi], float)
+            e, li, la, side = crossings(f.slope[gi], f.slope_se[gi], f.x_ref[gi], f.y_ref[gi],
+                                        f.residual_sd[gi], f.n[gi].astype(float), current=cur,
+                                        lower=np.full(gi.size, -np.inf), upper=lim,
+                                        horizon=np.full(gi.size, HORIZON_KM))
+            for j, i in enumerate(gi):
+                vid = pending[keys[i]][0]
+                play_fc[keys[i]] = _forecast(
+                    e[j], li[j], la[j], side[j], current_km=float(cur[j]),
+                    current_date=today_of[vid], km_per_day=kmpd.get(vid),
+                    horizon_end=float(cur[j]) + HORIZON_KM, model=PLAY_MODEL)
+        where = play_rows.groupby("gk").indices
+        for k in keys:  # the rest: the core itself (it explains the refusal)
+            if k in play_fc:
+                continue
+            st.fallback_series += 1
+            vid, corner, code, entry, _ = pending[k]
+            g = play_rows.iloc[where[k]]
+            rp = np.sort(rep.loc[rep["gk"] == k, "t"].to_numpy())
+            t = g["t"].to_numpy()
+            flags = np.array([False] + [bool(np.any((rp > t[j - 1]) & (rp <= t[j])))
+                                        for j in range(1, len(t))])
+            try:
+                wf = forecast_play(g["odometer_km"].to_numpy(float), g["play_mm"].to_numpy(float),
+                                   limit_mm=cache.limits[code].max_play_mm, current_km=odo[vid],
+                                   current_date=today_of[vid], km_per_day=kmpd.get(vid),
+                                   horizon_km=HORIZON_KM, replaced_before=flags,
+                                   measurement_sd_mm=ASSUMPTIONS["play_repeatability_mm"])
+                play_fc[k] = wf.forecast
+            except ValueError as exc:
+                entry["note"] = str(exc)
+
+    # -- stiffness criterion forecasts, stacked per platform corner and link
+    stiff_fc = {}
+    def criterion_applies(k) -> bool:
+        corner, code = pending[k][1], pending[k][2]
+        return (corner.startswith("R") and corner in cache.new
+                and PARTS_BY_CODE[code].links[0] in cache.new[corner].link_names)
+
+    crit = bu[bu["gk"].map(criterion_applies)] if len(bu) else bu
+    if len(crit):
+        keys, X, Y = _segment_stack(crit, rep, np.log(crit["k"].to_numpy(float)))
+        f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["stiffness_relative_sd"]))
+        xdec = (crit.groupby("gk")["odometer_km"].diff() < 0).groupby(crit["gk"]).any()
+        by_fn: dict = {}
+        for i, k in enumerate(keys):
+            vid, corner, code, entry, _ = pending[k]
+            if not f.ok[i] or xdec.get(k, False):
+                entry["note"] = "need stiffness values at two or more distinct odometer readings" \
+                    if not xdec.get(k, False) else "x must be non-decreasing in reading order"
+                continue
+            by_fn.setdefault((corner, PARTS_BY_CODE[code].links[0]), []).append(i)
+        for (corner, link), rows in by_fn.items():
+            fn = cache.toe_fn(corner, link)
+            gi = np.array(rows)
+            cur = np.array([odo[pending[keys[i]][0]] for i in gi])
+            e, li, la = _stiffness_crossings(f, gi, fn, cur)
+            for j, i in enumerate(gi):
+                vid = pending[keys[i]][0]
+                stiff_fc[keys[i]] = _forecast(
+                    e[j], li[j], la[j], None, current_km=float(cur[j]),
+                    current_date=today_of[vid], km_per_day=kmpd.get(vid),
+                    horizon_end=float(cur[j]) + HORIZON_KM, model=analysis_bush_model(),
+                    side_word="lower", notes=(TOE_OUT_LABEL,))
+                pending[keys[i]][3]["criterion"] = \
+                    "cornering toe change of the outer rear wheel turns toe-out"
+
+    for gk in sorted(pending):  # (vehicle, corner, part) order, as the per-vehicle groupby
+        vid, corner, code, entry, kind = pending[gk]
+        fc = play_fc.get(gk) if kind == "play" else stiff_fc.get(gk)
+        if fc is not None:
+            # a stiffness forecast never carries the no-rate note (as the core)
+            fc_json = analysis._forecast_json(fc)
+            entry["forecast"] = fc_json
+            fcs.setdefault(vid, []).append(adv.WearForecastInput(corner, PARTS_BY_CODE[code].label, fc))
+        wear.setdefault(vid, {})[f"{corner}.{code}"] = entry
+    return wear, fcs
+
+
+def analysis_bush_model() -> str:
+    from analytics.core.wear import BUSH_MODEL
+
+    return BUSH_MODEL
+
+
+def _stiffness_crossings(f: LineFits, gi: np.ndarray, fn, cur: np.ndarray):
+    """Vectorised :func:`~analytics.core.wear.forecast_stiffness_criterion` with the toe-out rule
+    (fails where the criterion is below 0 deg) for rows ``gi`` of the fits."""
+    slope, se, xref, yref = f.slope[gi], f.slope_se[gi], f.x_ref[gi], f.y_ref[gi]
+    rsd, n = f.residual_sd[gi], f.n[gi].astype(float)
+    u = np.linspace(-1.0, 1.0, BAND_SAMPLES)
+    centre = BAND_SAMPLES // 2
+
+    def failing(km, rows):  # km (r, g) → (r, g, samples)
+        mid = yref[rows, None] + slope[rows, None] * (km - xref[rows, None])
+        half = Z95 * np.sqrt(rsd[rows, None] ** 2 * (1.0 + 1.0 / n[rows, None])
+                             + se[rows, None] ** 2 * (km - xref[rows, None]) ** 2)
+        stiff = np.exp(mid[..., None] + u * half[..., None])
+        return np.asarray(fn(stiff), dtype=float) < 0.0
+
+    allr = np.arange(gi.size)
+    grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
+    flags = failing(grid, allr)
+    def at(x, r):
+        return failing(x[:, None], r)[:, 0]
+
+    early = _first_true_vec(grid, flags.any(axis=2), lambda x, r: at(x, r).any(axis=1), cur)
+    likely = _first_true_vec(grid, flags[:, :, centre], lambda x, r: at(x, r)[:, centre], cur)
+    late = _first_true_vec(grid, flags.all(axis=2), lambda x, r: at(x, r).all(axis=1), cur)
+    return early, likely, late
+
+
+def _findings_chunk(latest: pd.DataFrame, ev: pd.DataFrame) -> dict[int, list]:
+    """Component findings of the latest check per (corner, part), skipping parts replaced since."""
+    out: dict[int, list] = {}
+    if latest.empty:
+        return out
+    rep = ev[ev["kind"] == "part_replaced"]
+    last_rep = rep.groupby(["vehicle_id", "corner", "part"])["t"].max()
+    lr = latest.join(last_rep.rename("rep_t"), on=["vehicle_id", "corner", "part"])
+    for row in lr.itertuples(index=False):
+        if pd.notna(row.rep_t) and row.rep_t > row.t:
+            continue
+        part = PARTS_BY_CODE.get(row.part)
+        text = ", ".join(x for x in row.findings if x != "none") or "no finding"
+        out.setdefault(int(row.vehicle_id), []).append(adv.ComponentFinding(
+            corner=row.corner, part=part.label if part else row.part,
+            category=row.defect_category or None,
+            note=f"{text}; verdict {row.verdict.replace('_', ' ')}",
+            checked_on=_day(row.day), odometer_km=float(row.odometer_km)))
+    return out
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def _advice_key(a: dict) -> str:
+    from .services import _advice_key as key
+
+    return key(a)
+
+
+def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
+           vehicles: dict[int, Vehicle]) -> int:
+    """Store results (once per input key) and their advice; returns results inserted."""
+    if not results:
+        return 0
+    from .services import owner_report_on_commit
+
+    vids = sorted(results)
+    previous: dict[int, set] = {}
+    owners = [v for v in vids if vehicles[v].owner_id is not None]
+    for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
+        previous.setdefault(v, set()).add(k)
+    with transaction.atomic():
+        AnalysisResult.objects.bulk_create(
+            [AnalysisResult(vehicle_id=v, input_key=keys[v], model_version=MODEL_VERSION,
+                            payload=results[v][0]) for v in vids],
+            batch_size=2000, ignore_conflicts=True)
+        stored = {(v, k): (pk, has) for pk, v, k, has in AnalysisResult.objects.filter(
+            vehicle_id__in=vids, model_version=MODEL_VERSION,
+            input_key__in=set(keys[v] for v in vids)).annotate(
+            has=Exists(AdviceItem.objects.filter(result_id=OuterRef("pk")))).values_list(
+            "pk", "vehicle_id", "input_key", "has")}
+        mine = {}
+        for v in vids:
+            hit = stored.get((v, keys[v]))
+            if hit is not None and not hit[1]:  # no advice stored yet: ours to write
+                mine[v] = hit[0]
+        if not mine:
+            return 0
+        AdviceItem.objects.filter(vehicle_id__in=list(mine)).exclude(
+            result_id__in=list(mine.values())).delete()
+        items = []
+        for v, rid in mine.items():
+            for a in results[v][0]["advice"]:
+                items.append(AdviceItem(
+                    result_id=rid, vehicle_id=v, key=_advice_key(a), kind=a["kind"],
+                    severity=a["severity"], urgency_rank=SEVERITIES.index(a["severity"]),
+                    what=a["what"][:300],
+                    due_date=dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
+                    due_km=int(a["due_km"]) if a["due_km"] is not None else None,
+                    corner=a["corner"] or "", defect_category=a["defect_category"] or "", body=a))
+        AdviceItem.objects.bulk_create(items, batch_size=5000)
+        for v in owners:
+            if v in mine:
+                r = AnalysisResult(pk=mine[v], vehicle=vehicles[v], input_key=keys[v],
+                                   model_version=MODEL_VERSION, payload=results[v][0])
+                owner_report_on_commit(result=r, previous_keys=previous.get(v, set()))
+    return len(mine)
+
+
+def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> ChunkStats:
+    """Analyse one platform chunk: skip vehicles whose current inputs already have a result,
+    analyse the rest vectorised and store them. Safe to run twice (the second run writes nothing)."""
+    st = ChunkStats()
+    t0 = time.perf_counter()
+    stamp = _platform_stamp(platform_id)
+    keys = input_keys(list(vehicle_ids), stamp)
+    done = set(AnalysisResult.objects.filter(
+        vehicle_id__in=list(keys), model_version=MODEL_VERSION,
+        input_key__in=set(keys.values())).values_list("vehicle_id", "input_key"))
+    todo = {v for v, k in keys.items() if (v, k) not in done}
+    st.seconds["keys"] = time.perf_counter() - t0
+    results = analyse_chunk(platform_id, list(keys), only=todo, stats=st) if todo else {}
+    t1 = time.perf_counter()
+    vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=list(results)).only("id", "owner_id")}
+    st.written = _write(platform_id, keys, results, vehicles)
+    st.seconds["write"] = time.perf_counter() - t1
+    st.seconds["total"] = time.perf_counter() - t0
+    return st
+
+
+def chunks(size: int = CHUNK_VEHICLES) -> list[tuple[int, list[int]]]:
+    """Every vehicle exactly once, as ``(platform_id, vehicle_ids)`` chunks of at most ``size``."""
+    out: list[tuple[int, list[int]]] = []
+    rows = Vehicle.objects.order_by("platform_id", "pk").values_list("platform_id", "pk")
+    current: list[int] = []
+    current_p = None
+    for p, v in rows.iterator(chunk_size=20_000):
+        if p != current_p or len(current) >= size:
+            if current:
+                out.append((current_p, current))
+            current, current_p = [], p
+        current.append(v)
+    if current:
+        out.append((current_p, current))
+    return out
+
+
+def fleet_recompute(*, chunk_size: int = CHUNK_VEHICLES, fan_out: bool = False) -> int:
+    """Refresh pooled rates, then every chunk. ``fan_out``: send the chunks to the workers as
+    ``analytics.tasks.recompute_chunk`` (after commit); otherwise run them here. Returns the
+    vehicles covered."""
+    from . import tasks
+
+    for platform in Platform.objects.all():
+        platform_pool_fast(platform=platform)
+    todo = chunks(chunk_size)
+    if fan_out:
+        for p, ids in todo:
+            transaction.on_commit(lambda p=p, ids=ids: tasks.recompute_chunk.apply_async(args=[p, ids]))
+    else:
+        for p, ids in todo:
+            recompute_chunk(p, ids)
+    return sum(len(ids) for _, ids in todo)
+
+
+# --------------------------------------------------------------------------- pooled rates
+
+
+def platform_pool_fast(*, platform: Platform) -> int:
+    """:func:`analytics.services.platform_pool` for a whole platform at once.
+
+    One read of the platform's current readings; the same fits (as-adjusted sessions start a new
+    segment; steps screened, the core's ``fit_drift`` where the screen signals) and the same
+    shrinkage (:func:`analytics.core.drift.shrink_slopes` with ``shrink_drift``'s variances).
+    A pooled rate is only rewritten when it changed, so a rerun keeps the vehicles' input keys.
+    Returns the pooled rates stored.
+    """
+    from analytics.core.drift import MIN_READINGS_OWN_SCALE, shrink_slopes
+
+    ids = list(platform.vehicles.values_list("pk", flat=True))
+    if not ids:
+        return 0
+    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
+    if rd.empty:
+        return 0
+    rd["t"] = _ns(rd["measured_at"])
+    rd["day"] = 0
+    found = rd[rd["kind"] == "as_found"]
+    adj = rd.loc[rd["kind"] == "as_adjusted", ["vehicle_id", "t"]].drop_duplicates()
+    if found.empty:
+        return 0
+    ds = _drift_stacks(found, adj)
+    keys = ds["keys"]
+    n = 0
+    existing = {(p.corner, p.angle): p for p in platform.pooled_rates.all()}
+    for ci, corner in enumerate(CORNERS):
+        sel = np.nonzero((keys % 4) == ci)[0]
+        if not sel.size:
+            continue
+        for angle in ANGLES:
+            f, alarm = ds["fits"][angle], ds["alarms"][angle]
+            n_used = f.n[sel].astype(float)
+            rsd, sxx = f.residual_sd[sel].copy(), f.sxx[sel].copy()
+            slope = np.where(f.ok[sel], f.slope[sel], np.nan)
+            se = (f.slope_high[sel] - f.slope_low[sel]) / (2.0 * Z95)
+            for j, gi in enumerate(sel):
+                if alarm[gi] or ds["x_dec"].get(keys[gi], False):
+                    rows = ds["found"][ds["found"]["vc"] == keys[gi]]
+                    t = rows["t"].to_numpy()
+                    at = np.sort(adj.loc[adj["vehicle_id"] == keys[gi] // 4, "t"].to_numpy())
+                    flg = np.array([False] + [bool(np.any((at > t[i - 1]) & (at <= t[i])))
+                                              for i in range(1, len(t))])
+                    fit = fit_drift(rows["odometer_km"].to_numpy(float),
+                                    rows[f"{angle}_deg"].to_numpy(float), adjusted_before=flg,
+                                    measurement_sd=REPEATABILITY[angle])
+                    n_used[j], rsd[j], sxx[j] = fit.n_used, fit.residual_sd, fit.sxx
+                    slope[j] = fit.fit.slope if fit.fit is not None else np.nan
+                    se[j] = fit.fit.slope_se if fit.fit is not None else np.nan
+            dof = np.maximum(n_used - 2, 0)
+            pooled_s2 = float(np.sum(dof * rsd**2) / np.sum(dof)) if np.sum(dof) > 0 else 0.0
+            s2 = rsd**2
+            s2 = np.where(n_used < MIN_READINGS_OWN_SCALE, np.maximum(s2, pooled_s2), s2)
+            usable = np.isfinite(slope) & (sxx > 0)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                var = np.maximum(se**2, s2 / np.where(sxx > 0, sxx, 1.0))
+            good = usable & (var > 0)
+            b = np.where(good, slope, np.nan)
+            v = np.where(good, var, np.inf)
+            pooled = shrink_slopes(b, v).pooled
+            if pooled.vehicles < 3:
+                continue
+            values = dict(mean=pooled.mean, mean_se=pooled.mean_se, tau2=pooled.tau2,
+                          vehicles=pooled.vehicles, method=pooled.method)
+            old = existing.get((corner, angle))
+            if old is None or any(getattr(old, k) != val for k, val in values.items()):
+                PooledRate.objects.update_or_create(platform=platform, corner=corner, angle=angle,
+                                                    defaults=values)
+            n += 1
+    return n

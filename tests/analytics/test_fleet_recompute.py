@@ -1,0 +1,109 @@
+"""The vectorised fleet recompute gives the per-vehicle analysis, writes once and covers every
+vehicle exactly once. Invented demo data only (the small demo and a small large-fleet build)."""
+import datetime as dt
+import math
+
+import pytest
+from django.db import connection
+
+from analytics import analysis, services
+from analytics import fleet_recompute as fr
+from analytics.demo import large_fleet, scenario
+from analytics.inputs import vehicle_data
+from analytics.models import AdviceItem, AnalysisResult
+from inspections.models import Vehicle
+
+pytestmark = [
+    pytest.mark.django_db,
+    pytest.mark.skipif(connection.vendor != "postgresql", reason="the vectorised path reads with COPY"),
+]
+
+# Tolerances: the vectorised arithmetic is the core's own, element by element; sums may be taken
+# in another order, so slopes agree to a relative 1e-9 (deg/10 000 km) and forecast distances to
+# 1e-6 km; dates, kinds and severities must be equal.
+SLOPE_RTOL = 1e-9
+SLOPE_ATOL = 1e-12
+KM_ATOL = 1e-6
+
+
+def _fleet():
+    scenario.build(password="pw-fleet-test", vans=4, hire_cars=4, private_cars=2)
+    large_fleet.build(vehicles=24, seed=5)
+    services.fleet_recompute()  # pooled rates in place, as the nightly run leaves them
+
+
+def _close(a, b, rtol, atol):
+    if a is None or b is None:
+        return a is b
+    return math.isclose(a, b, rel_tol=rtol, abs_tol=atol)
+
+
+def test_the_vectorised_analysis_gives_the_per_vehicle_advice_and_drift_slopes():
+    _fleet()
+    compared = 0
+    for platform_id, ids in fr.chunks(size=1000):
+        fast = fr.analyse_chunk(platform_id, ids)
+        for vid in ids:
+            vehicle = Vehicle.objects.select_related("platform", "workshop").get(pk=vid)
+            ref, _ = analysis.analyse(vehicle_data(vehicle))
+            got = fast[vid][0]
+            key = [(a["kind"], a["corner"], a["what"], a["due_date"], a["severity"])
+                   for a in ref["advice"]]
+            assert [(a["kind"], a["corner"], a["what"], a["due_date"], a["severity"])
+                    for a in got["advice"]] == key, vehicle
+            for a, b in zip(ref["advice"], got["advice"], strict=True):
+                assert _close(a["due_km"], b["due_km"], 0.0, KM_ATOL)
+            assert set(ref["drift"]) == set(got["drift"])
+            for name, entry in ref["drift"].items():
+                other = got["drift"][name]
+                for field in ("slope_deg_per_10k", "shrunk_slope_deg_per_10k", "slope_deg_per_year"):
+                    assert _close(entry.get(field), other.get(field), SLOPE_RTOL, SLOPE_ATOL), \
+                        (vehicle, name, field)
+                assert entry.get("steps") == other.get("steps")
+                if "forecast" in entry:
+                    for f in ("early_date", "likely_date", "late_date", "status", "side"):
+                        assert entry["forecast"][f] == other["forecast"][f], (vehicle, name, f)
+            assert got["compliance"] == ref["compliance"]
+            assert set(got["wear"]) == set(ref["wear"])
+            compared += 1
+    assert compared == Vehicle.objects.count() == 34
+
+
+def test_a_rerun_writes_each_result_and_its_advice_once():
+    _fleet()
+    results, advice = AnalysisResult.objects.count(), AdviceItem.objects.count()
+    assert results == Vehicle.objects.count() and advice > 0
+    assert services.fleet_recompute() == Vehicle.objects.count()
+    assert (AnalysisResult.objects.count(), AdviceItem.objects.count()) == (results, advice)
+    platform_id, ids = fr.chunks()[0]
+    assert fr.recompute_chunk(platform_id, ids).written == 0
+
+
+def test_the_chunks_cover_every_vehicle_exactly_once_within_one_platform():
+    large_fleet.build(vehicles=30, seed=9)
+    chunks = fr.chunks(size=4)
+    flat = [v for _, ids in chunks for v in ids]
+    assert sorted(flat) == sorted(Vehicle.objects.values_list("pk", flat=True))
+    assert len(flat) == len(set(flat))
+    for platform_id, ids in chunks:
+        assert 0 < len(ids) <= 4
+        assert set(Vehicle.objects.filter(pk__in=ids).values_list("platform_id", flat=True)) == {
+            platform_id}
+
+
+def test_a_new_session_changes_the_input_key_and_only_that_vehicle_is_recomputed():
+    _fleet()
+    platform_id, ids = fr.chunks()[0]
+    vehicle = Vehicle.objects.get(pk=ids[0])
+    session = vehicle.alignmentsession_set.order_by("-measured_at").first()
+    from inspections.models import AlignmentSession, WheelReading
+
+    new = AlignmentSession.objects.create(
+        vehicle=vehicle, workshop=vehicle.workshop, technician=session.technician,
+        measured_at=session.measured_at + dt.timedelta(days=1), odometer_km=session.odometer_km + 50,
+        kind="as_found", equipment_id="RIG", equipment_calibrated_on=dt.date(2024, 1, 1))
+    for r in session.readings.all():
+        WheelReading.objects.create(session=new, corner=r.corner, toe_deg=r.toe_deg,
+                                    camber_deg=r.camber_deg, caster_deg=r.caster_deg)
+    assert fr.recompute_chunk(platform_id, ids).written == 1
+    assert AnalysisResult.objects.filter(vehicle=vehicle).count() == 2
