@@ -65,7 +65,7 @@ from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
 
 from . import analysis
 from .analysis import ANGLES, ASSUMPTIONS, HORIZON_KM, REPEATABILITY, advice_json
-from .models import AdviceItem, AnalysisResult, PooledRate
+from .models import AdviceItem, AnalysisResult, DriftRate, PooledRate, drift_rate_rows
 
 log = logging.getLogger(__name__)
 
@@ -1168,6 +1168,11 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
                     due_km=int(a["due_km"]) if a["due_km"] is not None else None,
                     corner=a["corner"] or "", defect_category=a["defect_category"] or "", body=a))
         AdviceItem.objects.bulk_create(items, batch_size=5000)
+        DriftRate.objects.filter(vehicle_id__in=list(mine)).delete()
+        DriftRate.objects.bulk_create(
+            [row for v, rid in mine.items() for row in drift_rate_rows(
+                result_id=rid, vehicle_id=v, platform_id=platform_id, payload=results[v][0])],
+            batch_size=5000)
         for v in owners:
             if v in mine:
                 r = AnalysisResult(pk=mine[v], vehicle=vehicles[v], input_key=keys[v],

@@ -113,3 +113,39 @@ class PooledRate(models.Model):
     class Meta:
         constraints = [models.UniqueConstraint(fields=["platform", "corner", "angle"],
                                                name="one_pooled_rate")]
+
+
+class DriftRate(models.Model):
+    """One vehicle's own drift rate of one corner and angle, from its latest result only.
+
+    A narrow copy of ``payload["drift"][…]["slope_deg_per_10k"]`` so that fleet-wide
+    distributions are read from an index instead of every result's JSON. Rewritten with the
+    vehicle's advice whenever a new result is stored.
+    """
+
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="drift_rates")
+    result = models.ForeignKey(AnalysisResult, on_delete=models.CASCADE, related_name="drift_rates")
+    platform = models.ForeignKey("inspections.Platform", on_delete=models.CASCADE,
+                                 related_name="drift_rates")
+    corner = models.CharField(max_length=2)
+    angle = models.CharField(max_length=10)
+    slope_deg_per_10k = models.FloatField(help_text="deg per 10,000 km")
+
+    class Meta:
+        indexes = [models.Index(fields=["platform", "corner", "angle"])]
+        constraints = [models.UniqueConstraint(fields=["vehicle", "corner", "angle"],
+                                               name="one_drift_rate_per_vehicle_angle")]
+
+
+def drift_rate_rows(*, result_id: int, vehicle_id: int, platform_id: int,
+                    payload: dict) -> list[DriftRate]:
+    """The DriftRate rows of one result's payload (only series with a rate of their own)."""
+    rows = []
+    for key, entry in (payload.get("drift") or {}).items():
+        slope = entry.get("slope_deg_per_10k")
+        if slope is None:
+            continue
+        corner, angle = key.split(".", 1)
+        rows.append(DriftRate(vehicle_id=vehicle_id, result_id=result_id, platform_id=platform_id,
+                              corner=corner, angle=angle, slope_deg_per_10k=float(slope)))
+    return rows

@@ -21,7 +21,15 @@ from inspections.models import Platform, Vehicle
 
 from . import analysis
 from .inputs import input_key, vehicle_data
-from .models import AdviceAction, AdviceItem, AnalysisRequest, AnalysisResult, PooledRate
+from .models import (
+    AdviceAction,
+    AdviceItem,
+    AnalysisRequest,
+    AnalysisResult,
+    DriftRate,
+    PooledRate,
+    drift_rate_rows,
+)
 
 log = logging.getLogger(__name__)
 RESEND_AFTER = dt.timedelta(minutes=10)
@@ -49,6 +57,10 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
                                                    model_version=MODEL_VERSION, payload=payload)
             owner_report_on_commit(result=result, previous_keys=previous_keys)
             AdviceItem.objects.filter(vehicle=vehicle).exclude(result=result).delete()
+            DriftRate.objects.filter(vehicle=vehicle).delete()
+            DriftRate.objects.bulk_create(drift_rate_rows(
+                result_id=result.pk, vehicle_id=vehicle.pk, platform_id=vehicle.platform_id,
+                payload=payload))
             AdviceItem.objects.bulk_create(
                 AdviceItem(result=result, vehicle=vehicle, key=_advice_key(a), kind=a["kind"],
                            severity=a["severity"], urgency_rank=SEVERITIES.index(a["severity"]),
