@@ -65,7 +65,14 @@ from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
 
 from . import analysis
 from .analysis import ANGLES, ASSUMPTIONS, HORIZON_KM, REPEATABILITY, advice_json
-from .models import AdviceItem, AnalysisResult, DriftRate, PooledRate, drift_rate_rows
+from .models import (
+    AdviceItem,
+    AnalysisResult,
+    DriftRate,
+    PooledRate,
+    drift_rate_rows,
+    payload_flips,
+)
 
 log = logging.getLogger(__name__)
 
@@ -1141,7 +1148,8 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     with transaction.atomic():
         AnalysisResult.objects.bulk_create(
             [AnalysisResult(vehicle_id=v, input_key=keys[v], model_version=MODEL_VERSION,
-                            payload=results[v][0]) for v in vids],
+                            payload=results[v][0], flips_to_toe_out=payload_flips(results[v][0]))
+             for v in vids],
             batch_size=2000, ignore_conflicts=True)
         stored = {(v, k): (pk, has) for pk, v, k, has in AnalysisResult.objects.filter(
             vehicle_id__in=vids, model_version=MODEL_VERSION,

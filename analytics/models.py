@@ -32,6 +32,10 @@ class AnalysisResult(models.Model):
     model_version = models.CharField(max_length=40)
     computed_at = models.DateTimeField(auto_now_add=True)
     payload = models.JSONField()
+    flips_to_toe_out = models.BooleanField(
+        default=False, db_index=True,
+        help_text="A rear corner's cornering toe change turns from toe-in (new) "
+                  "to toe-out (as measured): copied from the payload for the fleet view.")
 
     class Meta:
         constraints = [
@@ -39,6 +43,12 @@ class AnalysisResult(models.Model):
                                     name="one_result_per_inputs"),
         ]
         indexes = [models.Index(fields=["vehicle", "-computed_at"])]
+
+
+def payload_flips(payload: dict) -> bool:
+    """Whether the payload says worn parts flip a rear corner's cornering toe change to toe-out."""
+    comp = payload.get("compliance") or {}
+    return any(bool((comp.get(c) or {}).get("flips_to_toe_out")) for c in ("RL", "RR"))
 
 
 class AdviceItem(models.Model):

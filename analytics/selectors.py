@@ -66,9 +66,7 @@ def latest_results(user) -> QuerySet[AnalysisResult]:
 
 def toe_out_flips(user) -> QuerySet[AnalysisResult]:
     """Latest results where worn parts flip a rear corner's cornering toe change to toe-out."""
-    return (latest_results(user)
-            .filter(Q(payload__compliance__RL__flips_to_toe_out=True)
-                    | Q(payload__compliance__RR__flips_to_toe_out=True))
+    return (latest_results(user).filter(flips_to_toe_out=True)
             .select_related("vehicle", "vehicle__platform")
             .annotate(rl_new=KT("payload__compliance__RL__toe_change_new_deg"),
                       rl_now=KT("payload__compliance__RL__toe_change_measured_deg"),

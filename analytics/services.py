@@ -29,6 +29,7 @@ from .models import (
     DriftRate,
     PooledRate,
     drift_rate_rows,
+    payload_flips,
 )
 
 log = logging.getLogger(__name__)
@@ -54,7 +55,8 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
     try:
         with transaction.atomic():
             result = AnalysisResult.objects.create(vehicle=vehicle, input_key=key,
-                                                   model_version=MODEL_VERSION, payload=payload)
+                                                   model_version=MODEL_VERSION, payload=payload,
+                                                   flips_to_toe_out=payload_flips(payload))
             owner_report_on_commit(result=result, previous_keys=previous_keys)
             AdviceItem.objects.filter(vehicle=vehicle).exclude(result=result).delete()
             DriftRate.objects.filter(vehicle=vehicle).delete()

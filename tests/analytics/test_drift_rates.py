@@ -39,3 +39,17 @@ class DriftRateTests(PersonaTestCase):
         everyone = selectors.drift_distribution(self.admin)
         assert mine and all(row["vehicles"] == 1 for row in mine)
         assert max(row["vehicles"] for row in everyone) == 2
+
+    def test_the_toe_out_flag_mirrors_the_payload(self):
+        from analytics.models import payload_flips
+        from inspections import services as records
+        from tests import factories as f
+
+        records.component_check_submit(
+            vehicle=self.car_a, technician=self.tech_a, checked_at=f.at(2), odometer_km=60_000,
+            corner="RL", part="rear_toe_link_inner_bush", verdict="unfit", findings=["debonding"],
+            defect_category="major")
+        result = services.vehicle_analyse(vehicle_id=self.car_a.pk)
+        assert result.flips_to_toe_out is True and payload_flips(result.payload) is True
+        assert [r.vehicle_id for r in selectors.toe_out_flips(self.manager_a)] == [self.car_a.pk]
+        assert list(selectors.toe_out_flips(self.tech_b)) == []
