@@ -76,13 +76,19 @@ def _forecast_json(fc: CrossingForecast) -> dict:
             "late_date": _iso(fc.late_date), "model": fc.model, "notes": list(fc.notes)}
 
 
-def _adjusted_flags(found: pd.DataFrame, adjust_times: list) -> np.ndarray:
-    """For each as-found reading, whether an adjustment happened since the previous one."""
-    times = list(found["measured_at"])
+def _events_between(times, events) -> np.ndarray:
+    """Bool (n,): for each of ``times`` (in order), whether one of ``events`` fell after the
+    previous time and at or before this one (an adjustment, a replacement)."""
+    times = list(times)
     flags = np.zeros(len(times), dtype=bool)
     for i in range(1, len(times)):
-        flags[i] = any(times[i - 1] < t <= times[i] for t in adjust_times)
+        flags[i] = any(times[i - 1] < t <= times[i] for t in events)
     return flags
+
+
+def _adjusted_flags(found: pd.DataFrame, adjust_times: list) -> np.ndarray:
+    """For each as-found reading, whether an adjustment happened since the previous one."""
+    return _events_between(found["measured_at"], adjust_times)
 
 
 def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: float):
@@ -92,11 +98,12 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
     steps: list[adv.ImpactStep] = []
     if r.empty:
         return out, forecasts, steps
-    adjust_times = list(r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
+    # Adjustments: as-adjusted sessions, and adjustment events not already recorded as a session
     ev = data.events
-    adjust_times += list(ev.loc[ev["kind"] == "alignment_adjusted", "performed_at"])
-    adjust_times = [t for t in adjust_times if t not in set(r["measured_at"])] + list(
-        r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
+    reading_times = set(r["measured_at"])
+    adjust_times = [t for t in ev.loc[ev["kind"] == "alignment_adjusted", "performed_at"]
+                    if t not in reading_times]
+    adjust_times += list(r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
     for corner in ("FL", "FR", "RL", "RR"):
         rows = r[(r["corner"] == corner) & (r["kind"] == "as_found")].sort_values("measured_at")
         if len(rows) < 2:
@@ -161,13 +168,10 @@ def _drift(data: VehicleData, km_per_day: float | None, today: dt.date, odo: flo
 
 
 def _replaced_flags(checks: pd.DataFrame, events: pd.DataFrame, corner: str, part: str):
+    """For each check of a part, whether the part was replaced since the previous check."""
     rep = events[(events["kind"] == "part_replaced") & (events["corner"] == corner)
                  & (events["part"] == part)]["performed_at"].tolist()
-    times = list(checks["checked_at"])
-    flags = np.zeros(len(times), dtype=bool)
-    for i in range(1, len(times)):
-        flags[i] = any(times[i - 1] < t <= times[i] for t in rep)
-    return flags
+    return _events_between(checks["checked_at"], rep)
 
 
 @functools.lru_cache(maxsize=256)
