@@ -18,9 +18,10 @@ the same payload and advice for many vehicles at once:
 4. **Compliance** — each platform's corner files are parsed once, and the load-case comparison
    is computed once per distinct measured condition (cache keyed by the link conditions).
 5. **Advice** — :func:`analytics.core.advice.advise` per vehicle (pure Python, cheap).
-6. **Write** — ``AnalysisResult`` rows with ``bulk_create(ignore_conflicts=True)`` on the unique
-   (vehicle, input key, model version): a rerun, or a concurrent run, writes once; advice rows
-   with ``bulk_create`` only for results this run inserted.
+6. **Write** — ``AnalysisResult`` rows copied into a temporary table and inserted with
+   ``ON CONFLICT DO NOTHING RETURNING`` on the unique (vehicle, input key, model version): a
+   rerun, or a concurrent run, writes once; advice and drift-rate rows with ``COPY`` only for
+   the results this run inserted.
 
 Units: odometer km, angles deg, play mm, stiffness N/mm, slopes deg/km (payload deg/10 000 km).
 """
@@ -28,6 +29,7 @@ from __future__ import annotations
 
 import datetime as dt
 import io
+import json
 import logging
 import math
 import time
@@ -38,7 +40,6 @@ from zoneinfo import ZoneInfo
 import numpy as np
 import pandas as pd
 from django.db import connection, transaction
-from django.db.models import Exists, OuterRef
 from django.utils import timezone
 
 from analytics.core import advice as adv
@@ -68,7 +69,6 @@ from .analysis import ANGLES, ASSUMPTIONS, HORIZON_KM, REPEATABILITY, advice_jso
 from .models import (
     AdviceItem,
     AnalysisResult,
-    DriftRate,
     PooledRate,
     drift_rate_rows,
     payload_flips,
@@ -382,6 +382,64 @@ def _forecast(early, likely, late, side, *, current_km, current_date, km_per_day
 # --------------------------------------------------------------------------- platform caches
 
 
+class SignByStiffness:
+    """``function(k) < 0`` for stiffness arrays ``k`` (N/mm, any shape), computed once per platform
+    corner and link instead of once per sample.
+
+    The cornering toe change as a function of one link's stiffness is smooth, and monotonic over
+    the stiffnesses a bush has in service (the link's deflection is ``f/k`` and the wheel's small
+    rotation is linear in it, DESIGN.md §4); at stiffnesses near zero the rotations grow large and
+    it is not. That is checked, not assumed: the exact function is evaluated on ``CHECK_POINTS``
+    log-spaced stiffnesses up to ``K_HIGH``, and the widest range ``[k_mono, K_HIGH]`` ending
+    there on which it is strictly monotonic is kept. Inside it, the single zero ``k*`` (if any) is
+    found with ``scipy.optimize.brentq`` and ``k`` is below zero by which side of ``k*`` it lies
+    on. Values outside that range, or within ``ROOT_GUARD`` (relative) of ``k*``, are evaluated
+    exactly, so the answer is always the function's own sign.
+    """
+
+    K_LOW, K_HIGH = 1.0, 1.0e6  # N/mm: the range checked
+    CHECK_POINTS = 4097
+    ROOT_GUARD = 1e-9
+
+    def __init__(self, function):
+        from scipy.optimize import brentq
+
+        self.function = function
+        ks = np.geomspace(self.K_LOW, self.K_HIGH, self.CHECK_POINTS)
+        v = np.asarray(function(ks), dtype=float)
+        d = np.sign(np.diff(v))
+        self.root: float | None = None
+        self.k_mono = math.inf  # nothing is decided by the root unless the check passes
+        self.negative_above = False
+        self.constant_sign = False  # inside [k_mono, K_HIGH] with no zero: all below zero?
+        if np.all(np.isfinite(v)) and d[-1] != 0:
+            breaks = np.nonzero(d != d[-1])[0]
+            first = int(breaks[-1]) + 1 if breaks.size else 0
+            self.k_mono = float(ks[first])
+            vv, kk = v[first:], ks[first:]
+            self.negative_above = bool(d[-1] < 0)
+            neg = vv < 0
+            if neg.all() or not neg.any():
+                self.constant_sign = bool(neg.all())
+            else:
+                j = int(np.nonzero(neg[1:] != neg[:-1])[0][0])
+                self.root = float(brentq(lambda k: float(function(np.array([k]))[0]),
+                                         kk[j], kk[j + 1], xtol=1e-12, rtol=1e-14))
+
+    def __call__(self, k: np.ndarray) -> np.ndarray:
+        k = np.asarray(k, dtype=float)
+        inside = (k >= self.k_mono) & (k <= self.K_HIGH)
+        if self.root is None:
+            out = np.full(k.shape, self.constant_sign)
+            exact = ~inside
+        else:
+            out = (k > self.root) if self.negative_above else (k < self.root)
+            exact = ~inside | (np.abs(k / self.root - 1.0) < self.ROOT_GUARD)
+        if exact.any():
+            out[exact] = np.asarray(self.function(k[exact]), dtype=float) < 0.0
+        return out
+
+
 class PlatformCache:
     """What is the same for every vehicle of a platform: corners, specs, limits, pooled rates,
     stiffness → toe criteria, and compliance results per distinct measured condition."""
@@ -409,6 +467,13 @@ class PlatformCache:
         if key not in self._toe_fn:
             self._toe_fn[key] = analysis._toe_change_of_stiffness(self.data_like, self.new[pos],
                                                                  pos, link)
+        return self._toe_fn[key]
+
+    def toe_out_sign(self, pos: str, link: str) -> SignByStiffness:
+        """``toe change < 0`` as a function of one link's stiffness (see :class:`SignByStiffness`)."""
+        key = ("sign", pos, link)
+        if key not in self._toe_fn:
+            self._toe_fn[key] = SignByStiffness(self.toe_fn(pos, link))
         return self._toe_fn[key]
 
     def compliance(self, pos: str, conds: tuple):
@@ -598,7 +663,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     for col in ("corner", "part", "reason"):
         ev[col] = ev[col].fillna("")
     ck["defect_category"] = ck["defect_category"].fillna("")
-    ck["findings"] = [__import__("json").loads(s) for s in ck["findings"]]
+    ck["findings"] = [json.loads(s) for s in ck["findings"]]
 
     # ---- per-vehicle scalars: odometer now, km per day, last marks
     odo = {}
@@ -1044,10 +1109,10 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
                 continue
             by_fn.setdefault((corner, PARTS_BY_CODE[code].links[0]), []).append(i)
         for (corner, link), rows in by_fn.items():
-            fn = cache.toe_fn(corner, link)
+            below_zero = cache.toe_out_sign(corner, link)
             gi = np.array(rows)
             cur = np.array([odo[pending[keys[i]][0]] for i in gi])
-            e, li, la = _stiffness_crossings(f, gi, fn, cur)
+            e, li, la = _stiffness_crossings(f, gi, below_zero, cur)
             for j, i in enumerate(gi):
                 vid = pending[keys[i]][0]
                 stiff_fc[keys[i]] = _forecast(
@@ -1076,9 +1141,10 @@ def analysis_bush_model() -> str:
     return BUSH_MODEL
 
 
-def _stiffness_crossings(f: LineFits, gi: np.ndarray, fn, cur: np.ndarray):
+def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarray):
     """Vectorised :func:`~analytics.core.wear.forecast_stiffness_criterion` with the toe-out rule
-    (fails where the criterion is below 0 deg) for rows ``gi`` of the fits."""
+    (fails where the criterion is below 0 deg) for rows ``gi`` of the fits; ``below_zero`` maps
+    stiffness (N/mm, any shape) to ``criterion < 0`` (see :class:`SignByStiffness`)."""
     slope, se, xref, yref = f.slope[gi], f.slope_se[gi], f.x_ref[gi], f.y_ref[gi]
     rsd, n = f.residual_sd[gi], f.n[gi].astype(float)
     u = np.linspace(-1.0, 1.0, BAND_SAMPLES)
@@ -1089,7 +1155,7 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, fn, cur: np.ndarray):
         half = Z95 * np.sqrt(rsd[rows, None] ** 2 * (1.0 + 1.0 / n[rows, None])
                              + se[rows, None] ** 2 * (km - xref[rows, None]) ** 2)
         stiff = np.exp(mid[..., None] + u * half[..., None])
-        return np.asarray(fn(stiff), dtype=float) < 0.0
+        return below_zero(stiff)
 
     allr = np.arange(gi.size)
     grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
@@ -1133,9 +1199,30 @@ def _advice_key(a: dict) -> str:
     return key(a)
 
 
+def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
+    """``COPY table (columns) FROM STDIN`` of an iterable of tuples (psycopg adapts the values)."""
+    with cur.copy(f"COPY {table} ({', '.join(columns)}) FROM STDIN") as cp:
+        for row in rows:
+            cp.write_row(row)
+
+
+RESULT_INSERT_SQL = """
+INSERT INTO analytics_analysisresult
+       (vehicle_id, input_key, model_version, computed_at, payload, flips_to_toe_out)
+SELECT vehicle_id, input_key, %s, now(), payload, flips FROM fleet_result_stage ORDER BY vehicle_id
+ON CONFLICT (vehicle_id, input_key, model_version) DO NOTHING
+RETURNING id, vehicle_id"""
+
+
 def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
            vehicles: dict[int, Vehicle]) -> int:
-    """Store results (once per input key) and their advice; returns results inserted."""
+    """Store results (once per input key) and their advice; returns results inserted.
+
+    PostgreSQL's bulk path: the results are copied into a temporary table and inserted from it
+    with ``ON CONFLICT DO NOTHING RETURNING`` — the rows returned are the ones this run stored
+    (a concurrent or earlier run that stored the same inputs wrote its advice with them in its
+    own transaction). Advice and drift-rate rows of those results are written with ``COPY``.
+    """
     if not results:
         return 0
     from .services import owner_report_on_commit
@@ -1145,42 +1232,37 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     owners = [v for v in vids if vehicles[v].owner_id is not None]
     for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
         previous.setdefault(v, set()).add(k)
-    with transaction.atomic():
-        AnalysisResult.objects.bulk_create(
-            [AnalysisResult(vehicle_id=v, input_key=keys[v], model_version=MODEL_VERSION,
-                            payload=results[v][0], flips_to_toe_out=payload_flips(results[v][0]))
-             for v in vids],
-            batch_size=2000, ignore_conflicts=True)
-        stored = {(v, k): (pk, has) for pk, v, k, has in AnalysisResult.objects.filter(
-            vehicle_id__in=vids, model_version=MODEL_VERSION,
-            input_key__in=set(keys[v] for v in vids)).annotate(
-            has=Exists(AdviceItem.objects.filter(result_id=OuterRef("pk")))).values_list(
-            "pk", "vehicle_id", "input_key", "has")}
-        mine = {}
-        for v in vids:
-            hit = stored.get((v, keys[v]))
-            if hit is not None and not hit[1]:  # no advice stored yet: ours to write
-                mine[v] = hit[0]
+    dumps = json.dumps
+    with transaction.atomic(), connection.cursor() as dj:
+        cur = dj.cursor  # the psycopg cursor
+        cur.execute("DROP TABLE IF EXISTS fleet_result_stage")  # left by an enclosing transaction
+        cur.execute("CREATE TEMP TABLE fleet_result_stage (vehicle_id bigint, input_key text, "
+                    "payload jsonb, flips boolean) ON COMMIT DROP")
+        _copy_rows(cur, "fleet_result_stage", ("vehicle_id", "input_key", "payload", "flips"),
+                   ((v, keys[v], dumps(results[v][0]), payload_flips(results[v][0])) for v in vids))
+        cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
+        mine = {int(v): int(rid) for rid, v in cur.fetchall()}
         if not mine:
             return 0
-        AdviceItem.objects.filter(vehicle_id__in=list(mine)).exclude(
-            result_id__in=list(mine.values())).delete()
-        items = []
-        for v, rid in mine.items():
-            for a in results[v][0]["advice"]:
-                items.append(AdviceItem(
-                    result_id=rid, vehicle_id=v, key=_advice_key(a), kind=a["kind"],
-                    severity=a["severity"], urgency_rank=SEVERITIES.index(a["severity"]),
-                    what=a["what"][:300],
-                    due_date=dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
-                    due_km=int(a["due_km"]) if a["due_km"] is not None else None,
-                    corner=a["corner"] or "", defect_category=a["defect_category"] or "", body=a))
-        AdviceItem.objects.bulk_create(items, batch_size=5000)
-        DriftRate.objects.filter(vehicle_id__in=list(mine)).delete()
-        DriftRate.objects.bulk_create(
-            [row for v, rid in mine.items() for row in drift_rate_rows(
-                result_id=rid, vehicle_id=v, platform_id=platform_id, payload=results[v][0])],
-            batch_size=5000)
+        mine_ids = sorted(mine)
+        cur.execute("DELETE FROM analytics_adviceitem WHERE vehicle_id = ANY(%s) "
+                    "AND NOT (result_id = ANY(%s))", [mine_ids, list(mine.values())])
+        _copy_rows(cur, "analytics_adviceitem", (
+            "result_id", "vehicle_id", "key", "kind", "severity", "urgency_rank", "what",
+            "due_date", "due_km", "corner", "defect_category", "body"), (
+            (mine[v], v, _advice_key(a), a["kind"], a["severity"],
+             SEVERITIES.index(a["severity"]), a["what"][:300],
+             dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
+             int(a["due_km"]) if a["due_km"] is not None else None,
+             a["corner"] or "", a["defect_category"] or "", dumps(a))
+            for v in mine_ids for a in results[v][0]["advice"]))
+        cur.execute("DELETE FROM analytics_driftrate WHERE vehicle_id = ANY(%s)", [mine_ids])
+        _copy_rows(cur, "analytics_driftrate", (
+            "vehicle_id", "result_id", "platform_id", "corner", "angle", "slope_deg_per_10k"), (
+            (r.vehicle_id, r.result_id, r.platform_id, r.corner, r.angle, r.slope_deg_per_10k)
+            for v in mine_ids for r in drift_rate_rows(
+                result_id=mine[v], vehicle_id=v, platform_id=platform_id,
+                payload=results[v][0])))
         for v in owners:
             if v in mine:
                 r = AnalysisResult(pk=mine[v], vehicle=vehicles[v], input_key=keys[v],

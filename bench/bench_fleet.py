@@ -177,7 +177,7 @@ def bench_recompute(proc):
     raw = [raw_read_seconds(ids) for _ in range(2)]
     raw_s = min(r[0] for r in raw)
     with connection.cursor() as cur:
-        cur.execute("TRUNCATE analytics_analysisresult, analytics_adviceitem, "
+        cur.execute("TRUNCATE analytics_analysisresult, analytics_adviceitem, analytics_driftrate, "
                     "analytics_ownerreport, analytics_pooledrate")
     platforms = list(Platform.objects.values_list("pk", flat=True))
     cpu0 = cpu_seconds(proc)

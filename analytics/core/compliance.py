@@ -26,7 +26,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from .corner_file import Corner, line_matrix
-from .wheel_angles import rotation_matrices, toe_camber_deg, toe_camber_gradient
+from .wheel_angles import rotate_vectors, toe_camber_deg, toe_camber_gradient
 
 __all__ = [
     "ComplianceResult",
@@ -155,7 +155,7 @@ def load_response(corner: Corner, force_N: ArrayLike, point_mm: ArrayLike | None
     members = np.linalg.solve(g, wrench.T).T  # (m, 6)
     delta = members * _stiffness_diag(corner)
     u = np.linalg.solve(g.T, delta.T).T  # (m, 6)
-    spin = np.einsum("mij,j->mi", rotation_matrices(u[:, 3:]), corner.spin_axis)
+    spin = rotate_vectors(u[:, 3:], corner.spin_axis)
     toe, camber = toe_camber_deg(spin)
     toe0, camber0 = toe_camber_deg(corner.spin_axis)
     tb, cb = play_bands(corner)
@@ -184,10 +184,12 @@ def toe_change_for_link_stiffness(corner: Corner, force_N: ArrayLike, link: str,
     wrench = np.concatenate([f, np.cross(corner.contact_patch - corner.wheel_centre, f)])
     g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
     members = np.linalg.solve(g, wrench)  # (6,)
-    delta = np.broadcast_to(members * _stiffness_diag(corner), (k.size, 6)).copy()
-    delta[:, i] = members[i] / k
-    u = np.linalg.solve(g.T, delta.T).T  # (n, 6)
-    spin = np.einsum("mij,j->mi", rotation_matrices(u[:, 3:]), corner.spin_axis)
+    delta0 = members * _stiffness_diag(corner)  # (6,) deflections with the corner's own stiffness
+    # Gᵀ u = δ is linear in δ and only δ_i changes with k: u = u0 + (fᵢ/k − δ0ᵢ) · G⁻ᵀ eᵢ
+    u0 = np.linalg.solve(g.T, delta0)
+    col = np.linalg.solve(g.T, np.eye(6)[i])
+    u = u0 + (members[i] / k - delta0[i])[:, None] * col  # (n, 6)
+    spin = rotate_vectors(u[:, 3:], corner.spin_axis)
     toe, _ = toe_camber_deg(spin)
     toe0, _ = toe_camber_deg(corner.spin_axis)
     return toe - toe0

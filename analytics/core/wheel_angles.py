@@ -12,7 +12,13 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["toe_camber_deg", "toe_camber_gradient", "rotation_matrices", "spin_axis_from_angles"]
+__all__ = [
+    "rotate_vectors",
+    "rotation_matrices",
+    "spin_axis_from_angles",
+    "toe_camber_deg",
+    "toe_camber_gradient",
+]
 
 
 def toe_camber_deg(spin_axis: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -41,11 +47,35 @@ def rotation_matrices(rotvec: np.ndarray) -> np.ndarray:
     k[..., 0, 1], k[..., 0, 2] = -w[..., 2], w[..., 1]
     k[..., 1, 0], k[..., 1, 2] = w[..., 2], -w[..., 0]
     k[..., 2, 0], k[..., 2, 1] = -w[..., 1], w[..., 0]
+    a, b = _rodrigues_coefficients(theta)
+    return np.eye(3) + a * k + b * (k @ k)
+
+
+def _rodrigues_coefficients(theta: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``sin θ / θ`` and ``(1 − cos θ) / θ²`` with their series below 1e-8 rad."""
     small = theta < 1e-8
     safe = np.where(small, 1.0, theta)
     a = np.where(small, 1.0 - theta**2 / 6.0, np.sin(safe) / safe)
     b = np.where(small, 0.5 - theta**2 / 24.0, (1.0 - np.cos(safe)) / safe**2)
-    return np.eye(3) + a * k + b * (k @ k)
+    return a, b
+
+
+def rotate_vectors(rotvec: np.ndarray, vector: np.ndarray) -> np.ndarray:
+    """Rotate ``vector`` ``(3,)`` or ``(..., 3)`` by rotation vectors ``(..., 3)`` (rad).
+
+    The same Rodrigues formula as :func:`rotation_matrices` applied to the vector directly,
+    ``v + a (w × v) + b w × (w × v)``, without forming the ``(..., 3, 3)`` matrices: about ten
+    times less work when many rotations act on one spin axis. Returns ``(..., 3)``.
+    """
+    w = np.asarray(rotvec, dtype=float)
+    v = np.broadcast_to(np.asarray(vector, dtype=float), w.shape)
+    a, b = _rodrigues_coefficients(np.linalg.norm(w, axis=-1)[..., None])
+    wx, wy, wz = w[..., 0], w[..., 1], w[..., 2]
+    vx, vy, vz = v[..., 0], v[..., 1], v[..., 2]
+    c = np.stack([wy * vz - wz * vy, wz * vx - wx * vz, wx * vy - wy * vx], axis=-1)  # w × v
+    cx, cy, cz = c[..., 0], c[..., 1], c[..., 2]
+    cc = np.stack([wy * cz - wz * cy, wz * cx - wx * cz, wx * cy - wy * cx], axis=-1)  # w × (w × v)
+    return v + a * c + b * cc
 
 
 def spin_axis_from_angles(toe_deg: float, camber_deg: float, side: str) -> np.ndarray:

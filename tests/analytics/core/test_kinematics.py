@@ -189,3 +189,16 @@ def test_non_strict_sweep_marks_unreached_positions_and_keeps_the_rest_exact():
 def test_bad_travel_is_refused(bad):
     with pytest.raises(ValueError, match="^travel_mm:"):
         sweep(demo_corner("rear", "left"), bad)
+
+
+def test_rotating_a_vector_matches_scipy_rotations_for_large_and_tiny_angles():
+    # reference library: scipy.spatial.transform.Rotation.from_rotvec (Rodrigues' formula)
+    from analytics.core.wheel_angles import rotate_vectors, rotation_matrices
+
+    rng = np.random.default_rng(11)
+    w = rng.normal(size=(400, 3)) * np.logspace(-12, 0.5, 400)[:, None]  # 1e-12 … 3 rad
+    v = np.array([0.01, 0.9998, -0.015])
+    expected = Rotation.from_rotvec(w).apply(v)
+    np.testing.assert_allclose(rotate_vectors(w, v), expected, rtol=0, atol=1e-14)
+    np.testing.assert_allclose(rotate_vectors(w, v),
+                               np.einsum("mij,j->mi", rotation_matrices(w), v), rtol=0, atol=1e-14)
