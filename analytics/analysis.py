@@ -17,7 +17,7 @@ import pandas as pd
 
 from analytics.core import advice as adv
 from analytics.core import corner_from_dict, mirror_corner
-from analytics.core.compliance import stability_verdict, toe_change_for_link_stiffness
+from analytics.core.compliance import LinkStiffnessToe, stability_verdict
 from analytics.core.condition import (
     DEFLECTION_ASSUMPTION,
     FINDING_STIFFNESS_FACTORS,
@@ -321,11 +321,7 @@ def _toe_change_of_stiffness(data: VehicleData, corner_new, pos: str, link: str)
     lp = _load_platform(data.vehicle.platform)
     force = vehicle_load_cases(lp, outer_side=CORNER_SIDE[pos])[0].delta_force(pos)
 
-    def fn(k):
-        k = np.asarray(k, dtype=float)
-        return toe_change_for_link_stiffness(corner_new, force, link, k.ravel()).reshape(k.shape)
-
-    return fn
+    return LinkStiffnessToe(corner_new, force, link)
 
 
 def _findings(data: VehicleData) -> list[adv.ComponentFinding]:

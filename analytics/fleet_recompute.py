@@ -97,6 +97,7 @@ class ChunkStats:
     fallback_series: int = 0
     fallback_vehicles: int = 0
     seconds: dict = field(default_factory=dict)
+    keys: dict = field(default_factory=dict)  # vehicle id → the input key it was analysed for
 
 
 # --------------------------------------------------------------------------- reading
@@ -1206,8 +1207,7 @@ def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
             cp.write_row(row)
 
 
-RESULT_INSERT_SQL = """
-INSERT INTO analytics_analysisresult
+RESULT_INSERT_SQL = """INSERT INTO "analytics_analysisresult"
        (vehicle_id, input_key, model_version, computed_at, payload, flips_to_toe_out)
 SELECT vehicle_id, input_key, %s, now(), payload, flips FROM fleet_result_stage ORDER BY vehicle_id
 ON CONFLICT (vehicle_id, input_key, model_version) DO NOTHING
@@ -1278,6 +1278,7 @@ def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> ChunkStats:
     t0 = time.perf_counter()
     stamp = _platform_stamp(platform_id)
     keys = input_keys(list(vehicle_ids), stamp)
+    st.keys = keys
     done = set(AnalysisResult.objects.filter(
         vehicle_id__in=list(keys), model_version=MODEL_VERSION,
         input_key__in=set(keys.values())).values_list("vehicle_id", "input_key"))

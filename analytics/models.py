@@ -19,6 +19,9 @@ class AnalysisRequest(models.Model):
     created_at = models.DateTimeField(auto_now_add=True)
     sent_at = models.DateTimeField(null=True, blank=True)
     done_at = models.DateTimeField(null=True, blank=True)
+    claimed_at = models.DateTimeField(
+        null=True, blank=True,
+        help_text="When a job took this request into its batch (given up after a few minutes).")
     attempts = models.PositiveSmallIntegerField(default=0)
     last_error = models.TextField(blank=True)
 
@@ -69,7 +72,9 @@ class AdviceItem(models.Model):
 
     class Meta:
         indexes = [models.Index(fields=["vehicle", "urgency_rank"]),
-                   models.Index(fields=["due_date"])]
+                   models.Index(fields=["due_date"]),
+                   # the fleet view's "what is due" order: a page is an index range, not a sort
+                   models.Index(fields=["urgency_rank", "due_date", "id"], name="advice_due_order")]
         ordering = ["urgency_rank", "due_date", "id"]
 
 

@@ -12,7 +12,7 @@ import datetime as dt
 import logging
 
 from django.db import IntegrityError, transaction
-from django.db.models import Q
+from django.db.models import F, Q
 from django.utils import timezone
 
 from analytics.core.advice import MODEL_VERSION, SEVERITIES
@@ -44,13 +44,20 @@ def _advice_key(a: dict) -> str:
 
 def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
     """Analyse one vehicle; returns the stored result for its current inputs."""
+    from django.db import connection
+
+    if connection.vendor == "postgresql":
+        rid = vehicles_analyse(vehicle_ids=[vehicle_id]).get(vehicle_id)
+        if rid is not None:
+            return AnalysisResult.objects.get(pk=rid)
+        # no result: the per-vehicle reference below says why (it refuses the data)
     vehicle = Vehicle.objects.select_related("platform", "workshop").get(pk=vehicle_id)
     key = input_key(vehicle)
     existing = AnalysisResult.objects.filter(vehicle=vehicle, input_key=key,
                                              model_version=MODEL_VERSION).first()
     if existing is not None:
         return existing
-    payload = _analysis_payload(vehicle)
+    payload, _ = analysis.analyse(vehicle_data(vehicle))
     previous_keys = set(AdviceItem.objects.filter(vehicle=vehicle).values_list("key", flat=True))
     try:
         with transaction.atomic():
@@ -78,34 +85,93 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
     return result
 
 
-def _analysis_payload(vehicle: Vehicle) -> dict:
-    """One vehicle's payload: on PostgreSQL through the vectorised path (the same result as
-    ``analysis.analyse``, tested; a worker keeps the platform's compliance caches warm), else —
-    or for data the fast path hands back — the per-vehicle reference."""
+def vehicles_analyse(*, vehicle_ids) -> dict[int, int]:
+    """Analyse several vehicles at once; returns ``{vehicle id: result id}`` for their current
+    inputs (a vehicle whose data the analysis refuses is left out).
+
+    On PostgreSQL the vehicles are analysed per platform through the vectorised path
+    (:func:`analytics.fleet_recompute.recompute_chunk`: one read, one write, the same payload as
+    the per-vehicle analysis — tested); a vehicle whose inputs already have a result is not
+    analysed again. Elsewhere (the SQLite demo) vehicle by vehicle.
+    """
     from django.db import connection
 
-    if connection.vendor == "postgresql":
-        from .fleet_recompute import analyse_chunk
+    ids = sorted(set(vehicle_ids))
+    if connection.vendor != "postgresql":
+        out = {}
+        for vid in ids:
+            try:
+                out[vid] = vehicle_analyse(vehicle_id=vid).pk
+            except ValueError as exc:
+                log.warning("vehicle %s not analysed: %s", vid, exc)
+        return out
+    from . import fleet_recompute
 
-        hit = analyse_chunk(vehicle.platform_id, [vehicle.pk]).get(vehicle.pk)
-        if hit is not None:
-            return hit[0]
-    payload, _ = analysis.analyse(vehicle_data(vehicle))
-    return payload
+    by_platform: dict[int, list[int]] = {}
+    for vid, pid in Vehicle.objects.filter(pk__in=ids).values_list("pk", "platform_id"):
+        by_platform.setdefault(pid, []).append(vid)
+    wanted: dict[int, str] = {}
+    for pid, vids in sorted(by_platform.items()):
+        wanted.update(fleet_recompute.recompute_chunk(pid, vids).keys)
+    found = AnalysisResult.objects.filter(
+        vehicle_id__in=list(wanted), input_key__in=set(wanted.values()),
+        model_version=MODEL_VERSION).values_list("vehicle_id", "input_key", "pk")
+    return {v: pk for v, k, pk in found if wanted.get(v) == k}
+
+
+#: Open requests one job takes along with its own (the analysis of many vehicles at once costs
+#: little more than that of one: under a burst of sessions the queue drains in a few jobs).
+BATCH_REQUESTS = 200
+#: A claim by a job that died is given up after this long (its own task is redelivered anyway).
+CLAIM_TTL = dt.timedelta(minutes=5)
+
+
+def _claim_open_requests(*, exclude: int, limit: int) -> list[tuple[int, int]]:
+    """Claim up to ``limit`` open requests nobody has claimed lately, oldest first; returns
+    ``(request id, vehicle id)``. ``SKIP LOCKED``: two jobs claiming at once take different ones."""
+    now = timezone.now()
+    with transaction.atomic():
+        rows = list(AnalysisRequest.objects.select_for_update(skip_locked=True)
+                    .filter(done_at__isnull=True)
+                    .filter(Q(claimed_at__isnull=True) | Q(claimed_at__lt=now - CLAIM_TTL))
+                    .exclude(pk=exclude).order_by("created_at", "pk")
+                    .values_list("pk", "vehicle_id")[:limit])
+        if rows:
+            AnalysisRequest.objects.filter(pk__in=[r for r, _ in rows]).update(claimed_at=now)
+    return rows
 
 
 def request_process(*, request_id: int) -> int | None:
-    """Run one analysis request. A request already done, or gone, is a no-op."""
+    """Run one analysis request, and with it the other open ones (see ``BATCH_REQUESTS``).
+
+    A request already done — answered by another job's batch — or gone is a no-op that returns
+    the vehicle's latest result. The job's own request is always analysed, even if another job
+    claimed it (that job may have died): a vehicle analysed twice for the same inputs still has
+    one result. Every request of the batch is marked done once its vehicle's result is stored;
+    the result covers its record, committed before the claim and the reads that follow it.
+    """
     req = AnalysisRequest.objects.filter(pk=request_id).first()
     if req is None:
         return None
-    AnalysisRequest.objects.filter(pk=req.pk).update(attempts=req.attempts + 1)
-    result = vehicle_analyse(vehicle_id=req.vehicle_id)
-    # Every open request of the vehicle up to now is answered by this result.
-    AnalysisRequest.objects.filter(vehicle_id=req.vehicle_id, done_at__isnull=True,
-                                   created_at__lte=result.computed_at).update(done_at=timezone.now())
-    AnalysisRequest.objects.filter(pk=req.pk).update(done_at=timezone.now())
-    return result.pk
+    if req.done_at is not None:
+        latest = latest_result_id(req.vehicle_id)
+        if latest is not None:
+            AnalysisRequest.objects.filter(pk=req.pk).update(attempts=F("attempts") + 1)
+            return latest
+    AnalysisRequest.objects.filter(pk=req.pk).update(attempts=F("attempts") + 1,
+                                                     claimed_at=timezone.now())
+    others = _claim_open_requests(exclude=req.pk, limit=BATCH_REQUESTS - 1)
+    results = vehicles_analyse(vehicle_ids=[req.vehicle_id, *(v for _, v in others)])
+    if req.vehicle_id not in results:  # refused data: the reference path raises the reason
+        results[req.vehicle_id] = vehicle_analyse(vehicle_id=req.vehicle_id).pk
+    answered = [req.pk, *(r for r, v in others if v in results)]
+    AnalysisRequest.objects.filter(pk__in=answered).update(done_at=timezone.now())
+    return results[req.vehicle_id]
+
+
+def latest_result_id(vehicle_id: int) -> int | None:
+    return (AnalysisResult.objects.filter(vehicle_id=vehicle_id, model_version=MODEL_VERSION)
+            .order_by("-computed_at", "-pk").values_list("pk", flat=True).first())
 
 
 def requests_sweep(*, older_than: dt.timedelta = RESEND_AFTER) -> int:
@@ -234,7 +300,11 @@ def owner_notifications_paused():
 def owner_report_on_commit(*, result: AnalysisResult, previous_keys: set[str]) -> bool:
     """After commit, enqueue the owner's PDF if the vehicle has an owner and the result new advice.
 
-    A broker that is down only logs: the owner can still download the PDF from their page.
+    With a queue the job runs ``OWNER_REPORT_DELAY_S`` later and makes the PDF only if the result
+    is still the vehicle's newest (a correction or another session in the meantime sends its own
+    — the owner gets one e-mail for the settled advice, and a burst of sessions does not keep
+    the workers rendering PDFs nobody will read). A broker that is down only logs: the owner
+    can still download the PDF from their page.
     """
     if result.vehicle.owner_id is None or not _owner_notifications.get():
         return False
@@ -252,7 +322,9 @@ def owner_report_on_commit(*, result: AnalysisResult, previous_keys: set[str]) -
                 # connection afterwards, which would end the caller's transaction)
                 reports.owner_report_issue(result_id=result.pk, paper="A4", email=True)
             else:
-                tasks.make_owner_report.apply_async(args=[result.pk, "A4", True], retry=False)
+                tasks.make_owner_report.apply_async(
+                    args=[result.pk, "A4", True], kwargs={"only_if_latest": True},
+                    countdown=settings.OWNER_REPORT_DELAY_S, retry=False)
         except Exception as exc:  # broker down, or an in-process run failed
             log.warning("owner report for result %s not made (%s)", result.pk, exc)
 

@@ -47,8 +47,11 @@ def pool_platform(platform_id: int) -> int:
 
 
 @shared_task(name="analytics.tasks.make_owner_report", acks_late=True, **RETRY)
-def make_owner_report(result_id: int, paper: str = "A4", email: bool = True) -> int:
-    """Render (once) the owner PDF for a result and e-mail it to the owner."""
+def make_owner_report(result_id: int, paper: str = "A4", email: bool = True, *,
+                      only_if_latest: bool = False) -> int | None:
+    """Render (once) the owner PDF for a result and e-mail it to the owner; with
+    ``only_if_latest``, nothing when a newer result of the vehicle exists."""
     from . import reports
 
-    return reports.owner_report_issue(result_id=result_id, paper=paper, email=email)
+    return reports.owner_report_issue(result_id=result_id, paper=paper, email=email,
+                                      only_if_latest=only_if_latest)

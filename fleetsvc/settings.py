@@ -53,6 +53,9 @@ try:
     MEDIA_ROOT = Path(env_str("MEDIA_ROOT", str(BASE_DIR / "var" / "media")))
     SECURE = env_bool("FLEETSVC_SECURE", False)
     JOB_TIMEOUT_S = env_int("FLEETSVC_JOB_TIMEOUT_S", 300, minimum=1)
+    # An owner's PDF is made this long after a result with new advice, and only if no newer
+    # result came meanwhile: corrections in quick succession send the owner one e-mail.
+    OWNER_REPORT_DELAY_S = env_int("FLEETSVC_OWNER_REPORT_DELAY_S", 120, minimum=0)
     AXES_ENABLED = env_bool("FLEETSVC_SIGNIN_THROTTLE", True)
     AXES_FAILURE_LIMIT = env_int("FLEETSVC_SIGNIN_FAILURES", 5, minimum=1)
     _signin_cooloff_min = env_int("FLEETSVC_SIGNIN_COOLOFF_MIN", 15, minimum=1)
@@ -196,9 +199,8 @@ AXES_VERBOSE = False
 
 # Content-Security-Policy (django-csp 4): everything from this origin; no inline or eval'd
 # script, no plugins, no framing, forms post only here. Style *attributes* stay allowed
-# (style-src-attr): the tolerance bands place their markers with style="left:…%" and the
-# matplotlib SVG charts embedded in pages carry their presentation in style attributes; an
-# attribute cannot run script. <style> elements and style sheets must come from this origin.
+# (style-src-attr): the tolerance bands place their markers with style="left:…%" (the SVG
+# charts use presentation attributes only); an attribute cannot run script. <style> elements and style sheets must come from this origin.
 CONTENT_SECURITY_POLICY = {
     "DIRECTIVES": {
         "default-src": [SELF],

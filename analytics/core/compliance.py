@@ -36,6 +36,7 @@ __all__ = [
     "play_sensitivity",
     "play_bands",
     "stability_verdict",
+    "LinkStiffnessToe",
     "toe_change_for_link_stiffness",
     "DEFAULT_VERDICT_LATERAL_FORCE_N",
 ]
@@ -166,33 +167,48 @@ def load_response(corner: Corner, force_N: ArrayLike, point_mm: ArrayLike | None
         camber_band_deg=cb, link_names=corner.link_names)
 
 
+class LinkStiffnessToe:
+    """Toe change (deg) under one force (3,) N at the contact patch as a function of one link's
+    stiffness, everything that does not depend on that stiffness worked out once.
+
+    Same model as :func:`load_response`: member forces do not depend on stiffness (statically
+    determinate), so only link ``i``'s deflection ``fᵢ/k`` changes, and the carrier
+    displacement is linear in it: ``u = u0 + (fᵢ/k − δ0ᵢ) · G⁻ᵀ eᵢ``. Calling it with ``k`` of
+    any shape (N/mm, finite, > 0) returns the toe change of that shape.
+    """
+
+    def __init__(self, corner: Corner, force_N: ArrayLike, link: str):
+        f = np.asarray(force_N, dtype=float).reshape(3)
+        if not np.all(np.isfinite(f)):
+            raise ValueError("force_N must be finite")
+        i = corner.link_index(link)
+        wrench = np.concatenate([f, np.cross(corner.contact_patch - corner.wheel_centre, f)])
+        g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
+        members = np.linalg.solve(g, wrench)  # (6,)
+        delta0 = members * _stiffness_diag(corner)  # (6,) deflections with the corner's own k
+        self._rot0 = np.linalg.solve(g.T, delta0)[3:]  # (3,) rad
+        self._rot_per = np.linalg.solve(g.T, np.eye(6)[i])[3:]  # (3,) rad per mm of link i
+        self._force_i, self._delta0_i = float(members[i]), float(delta0[i])
+        self._spin = corner.spin_axis
+        self._toe0 = float(toe_camber_deg(corner.spin_axis)[0])
+
+    def __call__(self, stiffness_N_per_mm: ArrayLike) -> np.ndarray:
+        k = np.asarray(stiffness_N_per_mm, dtype=float)
+        if not (np.all(np.isfinite(k)) and np.all(k > 0)):
+            raise ValueError("stiffness_N_per_mm must be finite and > 0")
+        t = (self._force_i / k - self._delta0_i)[..., None]  # link i's extra deflection, mm
+        spin = rotate_vectors(self._rot0 + t * self._rot_per, self._spin)
+        toe, _ = toe_camber_deg(spin)
+        return toe - self._toe0
+
+
 def toe_change_for_link_stiffness(corner: Corner, force_N: ArrayLike, link: str,
                                   stiffness_N_per_mm: ArrayLike) -> np.ndarray:
     """Toe change (deg, shape (n,)) under one force (3,) N at the contact patch, with link
     ``link``'s stiffness set to each of ``stiffness_N_per_mm`` (n,) and the others as in
-    ``corner``.
-
-    Same model as :func:`load_response`: member forces do not depend on stiffness (statically
-    determinate), so only that link's deflection changes; the n carrier displacements are solved
-    in one batch.
-    """
-    f = np.asarray(force_N, dtype=float).reshape(3)
+    ``corner`` (see :class:`LinkStiffnessToe`, which keeps the fixed part for many calls)."""
     k = np.asarray(stiffness_N_per_mm, dtype=float).reshape(-1)
-    if not (np.all(np.isfinite(f)) and np.all(np.isfinite(k)) and np.all(k > 0)):
-        raise ValueError("force_N must be finite and stiffness_N_per_mm finite and > 0")
-    i = corner.link_index(link)
-    wrench = np.concatenate([f, np.cross(corner.contact_patch - corner.wheel_centre, f)])
-    g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
-    members = np.linalg.solve(g, wrench)  # (6,)
-    delta0 = members * _stiffness_diag(corner)  # (6,) deflections with the corner's own stiffness
-    # Gᵀ u = δ is linear in δ and only δ_i changes with k: u = u0 + (fᵢ/k − δ0ᵢ) · G⁻ᵀ eᵢ
-    u0 = np.linalg.solve(g.T, delta0)
-    col = np.linalg.solve(g.T, np.eye(6)[i])
-    u = u0 + (members[i] / k - delta0[i])[:, None] * col  # (n, 6)
-    spin = rotate_vectors(u[:, 3:], corner.spin_axis)
-    toe, _ = toe_camber_deg(spin)
-    toe0, _ = toe_camber_deg(corner.spin_axis)
-    return toe - toe0
+    return LinkStiffnessToe(corner, force_N, link)(k)
 
 
 def stability_verdict(corner: Corner, lateral_force_N: float | None = None) -> StabilityVerdict:

@@ -38,11 +38,13 @@ def fleet(request):
     f = _filters(request)
     due = selectors.due_advice(request.user, severity=f.get("severity") or None,
                                overdue_only=bool(f.get("overdue")))
-    flips = selectors.toe_out_flips(request.user)
     if request.GET.get("format") == "csv":
-        return _csv(request, f.get("show") or "due", due, flips)
+        return _csv(request, f.get("show") or "due", due,
+                    selectors.toe_out_flips_export(request.user))
     page = Paginator(due, PAGE).get_page(f.get("page") or 1)
-    flips_page = Paginator(flips, PAGE).get_page(f.get("flips_page") or 1)
+    flips_page = Paginator(selectors.toe_out_flips(request.user), PAGE).get_page(
+        f.get("flips_page") or 1)
+    flips_page.object_list = selectors.with_flip_values(flips_page.object_list)
     return render(request, "analytics/fleet.html", {
         "counts": selectors.urgency_counts(request.user), "page": page, "flips": flips_page,
         "rates": selectors.drift_distribution(request.user), "filters": f,

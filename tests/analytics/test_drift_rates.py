@@ -53,3 +53,36 @@ class DriftRateTests(PersonaTestCase):
         assert result.flips_to_toe_out is True and payload_flips(result.payload) is True
         assert [r.vehicle_id for r in selectors.toe_out_flips(self.manager_a)] == [self.car_a.pk]
         assert list(selectors.toe_out_flips(self.tech_b)) == []
+        row, = selectors.with_flip_values(selectors.toe_out_flips(self.manager_a))
+        comp = result.payload["compliance"]["RL"]
+        assert row.rl_flip == "true" and float(row.rl_now) < 0 < float(row.rl_new)
+        assert (float(row.rl_new), float(row.rl_now)) == (comp["toe_change_new_deg"],
+                                                          comp["toe_change_measured_deg"])
+
+    def test_the_database_bins_are_numpys_equal_width_bins(self):
+        # independent reference: numpy, floor((rate - lo) / width) clipped to the 12 bins
+        import numpy as np
+
+        from tests import factories as f
+
+        services.vehicle_analyse(vehicle_id=self.car_a.pk)
+        services.vehicle_analyse(vehicle_id=self.car_b.pk)
+        rng = np.random.default_rng(4)
+        extra = []  # more rates so that bins and edges are exercised (the top edge included)
+        for i, slope in enumerate(np.concatenate([rng.normal(0.02, 0.01, 40), [0.06, 0.06]])):
+            v = f.make_vehicle(platform=self.platform, workshop=self.workshop_a, plate=f"BIN {i}")
+            extra.append(DriftRate(vehicle=v, result=DriftRate.objects.first().result,
+                                   platform=self.platform, corner="RL", angle="toe",
+                                   slope_deg_per_10k=float(slope)))
+        DriftRate.objects.bulk_create(extra)
+        rows = {(r["corner"], r["angle"]): r for r in selectors.drift_distribution(self.admin)}
+        for (corner, angle), row in rows.items():
+            rates = np.array(DriftRate.objects.filter(corner=corner, angle=angle).values_list(
+                "slope_deg_per_10k", flat=True))
+            lo, hi = (rates.min(), rates.max()) if rates.max() > rates.min() else \
+                (rates.min() - 0.005, rates.max() + 0.005)
+            width = (hi - lo) / selectors.HIST_BINS
+            idx = np.clip(np.floor((rates - lo) / width).astype(int), 0, selectors.HIST_BINS - 1)
+            expected = np.bincount(idx, minlength=selectors.HIST_BINS)
+            assert row["vehicles"] == rates.size and (row["lo"], row["hi"]) == (lo, hi)
+            np.testing.assert_array_equal(row["counts"], expected)

@@ -7,6 +7,7 @@ from analytics.core.advice import MODEL_VERSION
 from analytics.core.caution import CAUTION
 from analytics.models import AdviceItem, AnalysisRequest, AnalysisResult
 from inspections import services as records
+from inspections.models import AlignmentSession
 from tests import factories as f
 from tests.analytics.helpers import give_corners, give_history
 from tests.base import PersonaTestCase
@@ -122,3 +123,33 @@ class AnalysisRequestTests(PersonaTestCase):
         assert a == b
         assert AnalysisResult.objects.count() == 1
         assert AnalysisRequest.objects.get().done_at is not None
+
+    def test_one_job_answers_every_open_request_and_the_others_find_theirs_done(self):
+        with self.captureOnCommitCallbacks(execute=False):  # nothing sent: a queue backlog
+            give_history(self.car_a, self.tech_a, visits=3)
+            give_history(self.car_b, self.tech_b, visits=3)
+        first = AnalysisRequest.objects.filter(vehicle=self.car_a).order_by("pk").first()
+        result_a = services.request_process(request_id=first.pk)
+        assert not AnalysisRequest.objects.filter(done_at__isnull=True).exists()
+        for car in (self.car_a, self.car_b):  # each result saw the vehicle's newest session
+            newest = AlignmentSession.objects.filter(vehicle=car).order_by("-pk").first()
+            latest = services.latest_result(car)
+            assert latest.input_key.startswith(f"s{newest.pk}.")
+        assert services.latest_result(self.car_a).pk == result_a
+        stored = AnalysisResult.objects.count()
+        for req in AnalysisRequest.objects.exclude(pk=first.pk):  # their own jobs: no-ops
+            assert services.request_process(request_id=req.pk) == \
+                services.latest_result(req.vehicle).pk
+        assert AnalysisResult.objects.count() == stored == 2
+
+    def test_a_request_claimed_by_a_job_that_died_is_still_run_by_its_own_job(self):
+        from django.utils import timezone
+
+        with self.captureOnCommitCallbacks(execute=False):
+            give_history(self.car_a, self.tech_a, visits=3)
+        AnalysisRequest.objects.update(claimed_at=timezone.now())  # claimed, never finished
+        last = AnalysisRequest.objects.order_by("-pk").first()
+        assert services.request_process(request_id=last.pk) is not None
+        assert AnalysisRequest.objects.get(pk=last.pk).done_at is not None
+        # the requests claimed by the dead job stay open for their own jobs (and the sweep)
+        assert AnalysisRequest.objects.filter(done_at__isnull=True).count() == 2

@@ -1,6 +1,7 @@
 """The owner PDF: its text (pdftotext), page size (pdfinfo), made once, e-mailed once."""
 from __future__ import annotations
 
+import datetime as dt
 import re
 import shutil
 import subprocess
@@ -136,3 +137,41 @@ class OwnerReportTests(PersonaTestCase):
             result = give_history(self.van_f, self.tech_b)
         self.assertEqual(run_report_callbacks(callbacks), 0)
         self.assertFalse(OwnerReport.objects.filter(result=result).exists())
+
+
+@override_settings(MEDIA_ROOT=MEDIA, EMAIL_BACKEND="django.core.mail.backends.locmem.EmailBackend")
+class DelayedOwnerReportTests(PersonaTestCase):
+    """With a queue, the owner's PDF is made after a delay and only for the newest result."""
+
+    @classmethod
+    def setUpTestData(cls):
+        super().setUpTestData()
+        add_corners(cls.platform)
+
+    def test_the_report_job_is_sent_with_the_delay_and_skips_a_result_no_longer_newest(self):
+        from unittest import mock
+
+        from django.conf import settings
+
+        from analytics import services
+        from inspections import services as records
+        from tests import factories as f
+
+        car = f.make_vehicle(platform=self.platform, workshop=self.workshop_a, owner=self.owner)
+        with mock.patch("analytics.tasks.make_owner_report.apply_async") as send, \
+                self.settings(CELERY_TASK_ALWAYS_EAGER=False), \
+                self.captureOnCommitCallbacks(execute=True):
+            first = give_history(car, self.tech_a)
+        kwargs = send.call_args.kwargs
+        assert kwargs["countdown"] == settings.OWNER_REPORT_DELAY_S > 0
+        assert kwargs["kwargs"] == {"only_if_latest": True} and kwargs["args"][0] == first.pk
+        records.session_submit(vehicle=car, technician=self.tech_a, measured_at=f.at(days_ago=1),
+                               odometer_km=80_000, kind="as_found", equipment_id="R",
+                               equipment_calibrated_on=dt.date(2026, 1, 1),
+                               readings=f.readings(toe=0.3, camber=-0.8))
+        newer = services.vehicle_analyse(vehicle_id=car.pk)
+        assert newer.pk != first.pk
+        assert reports.owner_report_issue(result_id=first.pk, only_if_latest=True) is None
+        assert not OwnerReport.objects.filter(result=first).exists() and len(mail.outbox) == 0
+        rid = reports.owner_report_issue(result_id=newer.pk, only_if_latest=True)
+        assert OwnerReport.objects.get(pk=rid).result_id == newer.pk and len(mail.outbox) == 1
