@@ -200,7 +200,8 @@ AXES_VERBOSE = False
 # Content-Security-Policy (django-csp 4): everything from this origin; no inline or eval'd
 # script, no plugins, no framing, forms post only here. Style *attributes* stay allowed
 # (style-src-attr): the tolerance bands place their markers with style="left:…%" (the SVG
-# charts use presentation attributes only); an attribute cannot run script. <style> elements and style sheets must come from this origin.
+# charts use presentation attributes only); an attribute cannot run script. <style> elements
+# and style sheets must come from this origin.
 CONTENT_SECURITY_POLICY = {
     "DIRECTIVES": {
         "default-src": [SELF],

@@ -86,3 +86,26 @@ class DriftRateTests(PersonaTestCase):
             expected = np.bincount(idx, minlength=selectors.HIST_BINS)
             assert row["vehicles"] == rates.size and (row["lo"], row["hi"]) == (lo, hi)
             np.testing.assert_array_equal(row["counts"], expected)
+
+    def test_the_fleet_page_and_its_csv_list_the_flipped_corner_with_its_values(self):
+        import csv
+        import io
+
+        from django.urls import reverse
+
+        from inspections import services as records
+        from tests import factories as f
+
+        records.component_check_submit(
+            vehicle=self.car_a, technician=self.tech_a, checked_at=f.at(2), odometer_km=60_000,
+            corner="RL", part="rear_toe_link_inner_bush", verdict="unfit", findings=["debonding"],
+            defect_category="major")
+        comp = services.vehicle_analyse(vehicle_id=self.car_a.pk).payload["compliance"]["RL"]
+        self.client.force_login(self.manager_a)
+        page = self.client.get(reverse("analytics:fleet")).content.decode()
+        assert f"{comp['toe_change_measured_deg']:.3f}° toe-out" in page
+        assert self.car_a.plate in page
+        response = self.client.get(reverse("analytics:fleet") + "?format=csv&show=flips")
+        rows = list(csv.DictReader(io.StringIO(response.content.decode("utf-8-sig"))))
+        assert [(r["plate"], r["RL_flips"]) for r in rows] == [(self.car_a.plate, "true")]
+        assert float(rows[0]["RL_now_deg"]) == comp["toe_change_measured_deg"]
