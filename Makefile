@@ -43,7 +43,7 @@ bench: $(STAMP)
 	$(BIN)/python bench/bench_corner.py
 
 ## make bench-load: demo in a dedicated PostgreSQL database, gunicorn + worker + own Redis on
-## loopback, locust headless at 10 and 50 users (about 10 minutes); figures in the README "Load"
+## loopback, locust headless at 10 and 50 users (about 5 minutes); figures in the README "Load"
 bench-load: $(STAMP) services
 	$(BIN)/pip install -q -e ".[dev,bench]"
 	SECRET_KEY=bench-only-key $(BIN)/python bench/bench_load.py --pg-host $(PGSOCK)
