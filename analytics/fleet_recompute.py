@@ -460,6 +460,7 @@ class PlatformCache:
             left = corner_from_dict(g)
             self.new[pos] = left if CORNER_SIDE[pos] == "left" else mirror_corner(left)
         self._toe_fn: dict = {}
+        self._toe_sign: dict = {}
         self._compliance: dict = {}
         self.compliance_misses = 0
 
@@ -472,10 +473,10 @@ class PlatformCache:
 
     def toe_out_sign(self, pos: str, link: str) -> SignByStiffness:
         """``toe change < 0`` as a function of one link's stiffness (see :class:`SignByStiffness`)."""
-        key = ("sign", pos, link)
-        if key not in self._toe_fn:
-            self._toe_fn[key] = SignByStiffness(self.toe_fn(pos, link))
-        return self._toe_fn[key]
+        key = (pos, link)
+        if key not in self._toe_sign:
+            self._toe_sign[key] = SignByStiffness(self.toe_fn(pos, link))
+        return self._toe_sign[key]
 
     def compliance(self, pos: str, conds: tuple):
         """(payload entry, verdicts, conditions_used) for one position and condition key."""

@@ -152,16 +152,13 @@ def drift_distribution(user) -> list[dict]:
             "pooled_mean": mean, "pooled_se": p.mean_se * 1e4 if p else None,
             "spread": spread, "pooled_vehicles": p.vehicles if p else 0,
             "method": p.method if p else "",
-            "svg": _histogram(counts, [lo + i * width for i in range(HIST_BINS + 1)], mean,
-                              f"{n} vehicle{'s' if n != 1 else ''} · {lo0:+.3f} … {hi0:+.3f}"),
+            "svg": charts.rate_histogram_svg(  # drawn per view: about 0.1 ms
+                counts=counts, edges=[lo + i * width for i in range(HIST_BINS + 1)],
+                pooled_mean=mean,
+                title=f"{n} vehicle{'s' if n != 1 else ''} · {lo0:+.3f} … {hi0:+.3f}"),
         })
     out.sort(key=lambda r: (r["platform"], r["corner"], r["angle"]))
     return out
-
-
-def _histogram(counts: list[int], edges: list[float], mean: float | None, title: str) -> str:
-    """The histogram SVG (rates in deg per 10,000 km), drawn per view: it costs ~0.1 ms."""
-    return charts.rate_histogram_svg(counts=counts, edges=edges, pooled_mean=mean, title=title)
 
 
 def actions_of(vehicle: Vehicle) -> dict[str, AdviceAction]:

@@ -169,9 +169,14 @@ def request_process(*, request_id: int) -> int | None:
     return results[req.vehicle_id]
 
 
-def latest_result_id(vehicle_id: int) -> int | None:
+def _newest_first(vehicle_id: int):
+    """The vehicle's results of this model version, newest first."""
     return (AnalysisResult.objects.filter(vehicle_id=vehicle_id, model_version=MODEL_VERSION)
-            .order_by("-computed_at", "-pk").values_list("pk", flat=True).first())
+            .order_by("-computed_at", "-pk"))
+
+
+def latest_result_id(vehicle_id: int) -> int | None:
+    return _newest_first(vehicle_id).values_list("pk", flat=True).first()
 
 
 def requests_sweep(*, older_than: dt.timedelta = RESEND_AFTER) -> int:
@@ -243,8 +248,7 @@ def fleet_recompute(*, fan_out: bool = False) -> int:
 
 
 def latest_result(vehicle: Vehicle) -> AnalysisResult | None:
-    return (AnalysisResult.objects.filter(vehicle=vehicle, model_version=MODEL_VERSION)
-            .order_by("-computed_at", "-pk").first())
+    return _newest_first(vehicle.pk).first()
 
 
 @transaction.atomic
