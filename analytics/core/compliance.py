@@ -20,6 +20,7 @@ turn (unstable).
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -106,29 +107,63 @@ def _stiffness_diag(corner: Corner) -> np.ndarray:
     return inv
 
 
+@dataclass(frozen=True)
+class _Geometry:
+    """What depends only on a corner's link lines: G (6, 6), G⁻¹ (6, 6) and the play
+    sensitivities ∂toe/∂lᵢ, ∂camber/∂lᵢ (deg/mm, each (5,))."""
+
+    g: np.ndarray
+    g_inv: np.ndarray
+    toe_per_mm: np.ndarray
+    camber_per_mm: np.ndarray
+
+
+@functools.lru_cache(maxsize=256)
+def _geometry_of(key: bytes, chassis: bytes, carrier: bytes, centre: bytes, spin: bytes
+                 ) -> _Geometry:
+    def arr(b: bytes, shape):
+        return np.frombuffer(b, dtype=float).reshape(shape)
+
+    g = line_matrix(arr(chassis, (5, 3)), arr(carrier, (5, 3)), arr(centre, (3,)))
+    g_inv = np.linalg.inv(g)
+    # u_i solves Gᵀ u = e_i: the carrier motion per unit lengthening of link i
+    u = g_inv.T[:, :5]  # (6, 5)
+    ds = np.cross(u[3:].T, arr(spin, (3,)))  # (5, 3)
+    gt, gc = toe_camber_gradient(arr(spin, (3,)))
+    for a in (g, g_inv):
+        a.setflags(write=False)
+    return _Geometry(g, g_inv, ds @ gt, ds @ gc)
+
+
+def _geometry(corner: Corner) -> _Geometry:
+    """The corner's :class:`_Geometry`, worked out once per distinct geometry (a worn corner
+    shares its new corner's link lines: only stiffness and play differ)."""
+    parts = (np.ascontiguousarray(corner.chassis, dtype=float).tobytes(),
+             np.ascontiguousarray(corner.carrier, dtype=float).tobytes(),
+             np.ascontiguousarray(corner.wheel_centre, dtype=float).tobytes(),
+             np.ascontiguousarray(corner.spin_axis, dtype=float).tobytes())
+    return _geometry_of(b"".join(parts), *parts)
+
+
 def compliance_matrix(corner: Corner) -> np.ndarray:
     """C (6, 6): carrier displacement ``[Δc mm, ω rad]`` per wrench ``[F N, M N·mm]``.
 
     ``C = G⁻ᵀ diag(1/k₁…1/k₅, 0) G⁻¹`` — symmetric positive semi-definite (Maxwell–Betti).
     """
-    g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
-    g_inv = np.linalg.inv(g)
+    g_inv = _geometry(corner).g_inv
     return g_inv.T @ (_stiffness_diag(corner)[:, None] * g_inv)
 
 
 def play_sensitivity(corner: Corner) -> tuple[np.ndarray, np.ndarray]:
     """∂toe/∂lᵢ and ∂camber/∂lᵢ (deg per mm of link length), each (5,), height held."""
-    g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
-    # u_i solves Gᵀ u = e_i: the carrier motion per unit lengthening of link i
-    u = np.linalg.solve(g.T, np.eye(6)[:, :5])  # (6, 5)
-    ds = np.cross(u[3:].T, corner.spin_axis)  # (5, 3)
-    gt, gc = toe_camber_gradient(corner.spin_axis)
-    return ds @ gt, ds @ gc
+    geo = _geometry(corner)
+    return geo.toe_per_mm.copy(), geo.camber_per_mm.copy()
 
 
 def play_bands(corner: Corner) -> tuple[float, float]:
     """Worst-case ± half-widths (deg) of toe and camber from the links' play."""
-    dt, dc = play_sensitivity(corner)
+    geo = _geometry(corner)
+    dt, dc = geo.toe_per_mm, geo.camber_per_mm
     return float(np.sum(np.abs(dt) * corner.play / 2.0)), float(np.sum(np.abs(dc) * corner.play / 2.0))
 
 
@@ -152,10 +187,10 @@ def load_response(corner: Corner, force_N: ArrayLike, point_mm: ArrayLike | None
         raise ValueError("point_mm: must be finite")
     p = np.broadcast_to(p, f.shape)
     wrench = np.concatenate([f, np.cross(p - corner.wheel_centre, f)], axis=1)  # (m, 6)
-    g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
-    members = np.linalg.solve(g, wrench.T).T  # (m, 6)
+    g_inv = _geometry(corner).g_inv
+    members = wrench @ g_inv.T  # (m, 6): G⁻¹ wrench
     delta = members * _stiffness_diag(corner)
-    u = np.linalg.solve(g.T, delta.T).T  # (m, 6)
+    u = delta @ g_inv  # (m, 6): G⁻ᵀ delta
     spin = rotate_vectors(u[:, 3:], corner.spin_axis)
     toe, camber = toe_camber_deg(spin)
     toe0, camber0 = toe_camber_deg(corner.spin_axis)

@@ -16,7 +16,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -323,17 +323,22 @@ def with_links(corner: Corner, *, stiffness: Mapping[str, float] | ArrayLike | N
     """A copy of ``corner`` with some links' stiffness (N/mm) and/or play (mm) replaced.
 
     ``stiffness`` / ``play``: a mapping ``{link name: value}`` (others unchanged) or five values.
-    The copy is validated like a file.
+    The new values are validated like a file's (finite; stiffness positive, play not negative);
+    the geometry is ``corner``'s own, already validated, so it is not checked again.
     """
-    raw = corner_to_dict(corner)
-    if name is not None:
-        raw["name"] = name
-    if stiffness is not None:
-        k = _per_link(corner, stiffness, np.asarray(corner.stiffness), "stiffness")
-        for i, link in enumerate(raw["links"]):
-            link["stiffness_N_per_mm"] = float(k[i])
-    if play is not None:
-        p = _per_link(corner, play, np.asarray(corner.play), "play")
-        for i, link in enumerate(raw["links"]):
-            link["play_mm"] = float(p[i])
-    return corner_from_dict(raw)
+    if name is not None and (not isinstance(name, str) or not name.strip()):
+        raise CornerFileError("name", "must be a non-empty string")
+    k = np.array(corner.stiffness, dtype=float) if stiffness is None else \
+        _per_link(corner, stiffness, np.asarray(corner.stiffness), "stiffness")
+    p = np.array(corner.play, dtype=float) if play is None else \
+        _per_link(corner, play, np.asarray(corner.play), "play")
+    for i in range(N_LINKS):
+        where = f"links[{i}]"
+        k[i] = _number(float(k[i]), f"{where}.stiffness_N_per_mm")
+        if k[i] <= 0:
+            raise CornerFileError(f"{where}.stiffness_N_per_mm", "must be positive")
+        p[i] = _number(float(p[i]), f"{where}.play_mm")
+        if p[i] < 0:
+            raise CornerFileError(f"{where}.play_mm", "must not be negative")
+    return replace(corner, name=corner.name if name is None else name, stiffness=_frozen(k),
+                   play=_frozen(p))
