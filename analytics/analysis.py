@@ -17,14 +17,14 @@ import pandas as pd
 
 from analytics.core import advice as adv
 from analytics.core import corner_from_dict, mirror_corner
-from analytics.core.compliance import LinkStiffnessToe, stability_verdict
+from analytics.core.compliance import LinkStiffnessToe, stability_verdicts
 from analytics.core.condition import (
     DEFLECTION_ASSUMPTION,
     FINDING_STIFFNESS_FACTORS,
     FINDINGS_NOTE,
     LinkCondition,
     measured_corner,
-    what_if,
+    what_if_many,
 )
 from analytics.core.drift import (
     CrossingForecast,
@@ -230,31 +230,48 @@ def _load_platform(p) -> LoadPlatform:
 def _compliance(data: VehicleData, new, measured):
     out: dict = {}
     verdicts: list[adv.ComplianceVerdict] = []
-    if not new:
-        return out, verdicts
-    lp = _load_platform(data.vehicle.platform)
     for pos, corner_new in new.items():
-        side = CORNER_SIDE[pos]
-        cases = vehicle_load_cases(lp, outer_side=side)
-        wi = what_if(corner_new, measured[pos], cases, position=pos)
-        out[pos] = {"rows": [asdict(r) for r in wi.rows], "stability_new": wi.stability_new,
-                    "stability_measured": wi.stability_measured, "notes": list(wi.notes)}
+        (o, v), = compliance_many(data.vehicle.platform, pos, corner_new, [measured[pos]])
+        out[pos] = o
+        verdicts.extend(v)
+    return out, verdicts
+
+
+@functools.lru_cache(maxsize=256)
+def _cases(lp: LoadPlatform, side: str) -> tuple:
+    return vehicle_load_cases(lp, outer_side=side)
+
+
+def compliance_many(platform, pos: str, corner_new, measured: list) -> list[tuple[dict, list]]:
+    """The payload entry and verdicts of position ``pos`` for each measured state of its corner
+    (``(entry, [ComplianceVerdict])`` per state): the load cases of DESIGN.md §5 against the new
+    corner and, at a rear position, the outer-rear stability verdict under the cornering force."""
+    lp = _load_platform(platform)
+    cases = _cases(lp, CORNER_SIDE[pos])
+    wis = what_if_many(corner_new, measured, cases, position=pos)
+    out = []
+    if pos.startswith("R"):
+        fy = abs(float(cases[0].delta_force(pos)[1]))
+        vs = stability_verdicts([corner_new, *measured], fy)
+    for k, wi in enumerate(wis):
+        entry = {"rows": [asdict(r) for r in wi.rows], "stability_new": wi.stability_new,
+                 "stability_measured": wi.stability_measured, "notes": list(wi.notes)}
+        verdicts = []
         if pos.startswith("R"):
-            fy = abs(float(cases[0].delta_force(pos)[1]))
-            v_new = stability_verdict(corner_new, fy)
-            v_meas = stability_verdict(measured[pos], fy)
-            out[pos]["verdict_new"] = v_new.verdict
-            out[pos]["verdict_measured"] = v_meas.verdict
-            out[pos]["toe_change_new_deg"] = v_new.toe_change_deg
-            out[pos]["toe_change_measured_deg"] = v_meas.toe_change_deg
-            out[pos]["toe_band_measured_deg"] = v_meas.toe_band_deg
-            out[pos]["lateral_force_N"] = fy
-            out[pos]["flips_to_toe_out"] = (v_new.direction == "toe-in"
-                                            and v_meas.direction == "toe-out")
+            v_new, v_meas = vs[0], vs[k + 1]
+            entry["verdict_new"] = v_new.verdict
+            entry["verdict_measured"] = v_meas.verdict
+            entry["toe_change_new_deg"] = v_new.toe_change_deg
+            entry["toe_change_measured_deg"] = v_meas.toe_change_deg
+            entry["toe_band_measured_deg"] = v_meas.toe_band_deg
+            entry["lateral_force_N"] = fy
+            entry["flips_to_toe_out"] = (v_new.direction == "toe-in"
+                                         and v_meas.direction == "toe-out")
             verdicts.append(adv.ComplianceVerdict(
                 corner=pos, load_case="cornering", ok=v_meas.verdict != "unstable",
                 text=f"{pos} as outer rear wheel in a turn (0.5 g, default): " + v_meas.note))
-    return out, verdicts
+        out.append((entry, verdicts))
+    return out
 
 
 def _wear(data: VehicleData, new, km_per_day, today, odo):

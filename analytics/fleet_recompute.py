@@ -480,17 +480,26 @@ class PlatformCache:
 
     def compliance(self, pos: str, conds: tuple):
         """(payload entry, verdicts, conditions_used) for one position and condition key."""
-        key = (pos, conds)
-        hit = self._compliance.get(key)
+        hit = self._compliance.get((pos, conds))
         if hit is None:
-            self.compliance_misses += 1
-            new = self.new[pos]
-            cd = {name: LinkCondition(*vals) for name, vals in conds}
-            meas = measured_corner(new, cd) if cd else new
-            out, verdicts = analysis._compliance(self.data_like, {pos: new}, {pos: meas})
-            hit = (out[pos], tuple(verdicts), {k: asdict(v) for k, v in cd.items()})
-            self._compliance[key] = hit
+            self.prepare_compliance(pos, [conds])
+            hit = self._compliance[(pos, conds)]
         return hit
+
+    def prepare_compliance(self, pos: str, conds_list) -> None:
+        """Work out the compliance of every condition key of ``conds_list`` not cached yet, all
+        states of the position together (:func:`analytics.analysis.compliance_many`)."""
+        todo = [c for c in dict.fromkeys(conds_list) if (pos, c) not in self._compliance]
+        if not todo:
+            return
+        self.compliance_misses += len(todo)
+        new = self.new[pos]
+        cds = [{name: LinkCondition(*vals) for name, vals in conds} for conds in todo]
+        measured = [measured_corner(new, cd) if cd else new for cd in cds]
+        outs = analysis.compliance_many(self.platform, pos, new, measured)
+        for conds, cd, (entry, verdicts) in zip(todo, cds, outs, strict=True):
+            self._compliance[(pos, conds)] = (entry, tuple(verdicts),
+                                              {k: asdict(v) for k, v in cd.items()})
 
 
 _CACHES: dict[int, tuple[str, PlatformCache]] = {}
@@ -779,11 +788,14 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
                    latest["play_mm"].tolist(), latest["deflection_mm"].tolist(),
                    latest["deflection_force_n"].tolist(), latest["findings"].tolist(), strict=True):
         by_pos.setdefault(rec[0], {}).setdefault(rec[1], []).append(rec[2:])
-    for vid, grp in by_pos.items():
+    conds_of = {vid: {pos: _conditions(grp.get(pos, []), new) for pos, new in cache.new.items()}
+                for vid, grp in by_pos.items()}
+    for pos in cache.new:
+        cache.prepare_compliance(pos, [c[pos] for c in conds_of.values()])
+    for vid in by_pos:
         out, verdicts, used = {}, [], {}
-        for pos, new in cache.new.items():
-            conds = _conditions(grp.get(pos, []), new)
-            o, vs, u = cache.compliance(pos, conds)
+        for pos in cache.new:
+            o, vs, u = cache.compliance(pos, conds_of[vid][pos])
             out[pos], used[pos] = o, u
             verdicts.extend(vs)
         comp[vid] = (out, verdicts, used)

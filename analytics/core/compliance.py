@@ -34,9 +34,12 @@ __all__ = [
     "StabilityVerdict",
     "compliance_matrix",
     "load_response",
+    "load_response_many",
+    "ResponsesMany",
     "play_sensitivity",
     "play_bands",
     "stability_verdict",
+    "stability_verdicts",
     "LinkStiffnessToe",
     "toe_change_for_link_stiffness",
     "DEFAULT_VERDICT_LATERAL_FORCE_N",
@@ -116,6 +119,9 @@ class _Geometry:
     g_inv: np.ndarray
     toe_per_mm: np.ndarray
     camber_per_mm: np.ndarray
+    toe0_deg: float
+    camber0_deg: float
+    spin: np.ndarray
 
 
 @functools.lru_cache(maxsize=256)
@@ -132,7 +138,9 @@ def _geometry_of(key: bytes, chassis: bytes, carrier: bytes, centre: bytes, spin
     gt, gc = toe_camber_gradient(arr(spin, (3,)))
     for a in (g, g_inv):
         a.setflags(write=False)
-    return _Geometry(g, g_inv, ds @ gt, ds @ gc)
+    toe0, camber0 = toe_camber_deg(arr(spin, (3,)))
+    return _Geometry(g, g_inv, ds @ gt, ds @ gc, float(toe0), float(camber0),
+                     arr(spin, (3,)))
 
 
 def _geometry(corner: Corner) -> _Geometry:
@@ -186,20 +194,69 @@ def load_response(corner: Corner, force_N: ArrayLike, point_mm: ArrayLike | None
     if not np.all(np.isfinite(p)):
         raise ValueError("point_mm: must be finite")
     p = np.broadcast_to(p, f.shape)
-    wrench = np.concatenate([f, np.cross(p - corner.wheel_centre, f)], axis=1)  # (m, 6)
-    g_inv = _geometry(corner).g_inv
-    members = wrench @ g_inv.T  # (m, 6): G⁻¹ wrench
-    delta = members * _stiffness_diag(corner)
-    u = delta @ g_inv  # (m, 6): G⁻ᵀ delta
-    spin = rotate_vectors(u[:, 3:], corner.spin_axis)
-    toe, camber = toe_camber_deg(spin)
-    toe0, camber0 = toe_camber_deg(corner.spin_axis)
+    geo = _geometry(corner)
+    members, u, toe, camber = _responses(geo, corner.wheel_centre, _stiffness_diag(corner)[None],
+                                         f, p)
     tb, cb = play_bands(corner)
     return ComplianceResult(
         force_N=f, point_mm=np.array(p), member_forces_N=members[:, :5],
-        vertical_reaction_N=members[:, 5], displacement_mm=u[:, :3], rotation_rad=u[:, 3:],
-        toe_change_deg=toe - toe0, camber_change_deg=camber - camber0, toe_band_deg=tb,
+        vertical_reaction_N=members[:, 5], displacement_mm=u[0, :, :3], rotation_rad=u[0, :, 3:],
+        toe_change_deg=toe[0], camber_change_deg=camber[0], toe_band_deg=tb,
         camber_band_deg=cb, link_names=corner.link_names)
+
+
+def _responses(geo: _Geometry, centre: np.ndarray, inv_k: np.ndarray, f: np.ndarray,
+               p: np.ndarray):
+    """The model of :func:`load_response` for ``K`` stiffness sets of one geometry at once.
+
+    ``inv_k``: (K, 6) compliances 1/k (mm/N, sixth 0); ``f``, ``p``: (m, 3) forces N at points mm.
+    Returns member forces (m, 6) N (they do not depend on stiffness: statically determinate),
+    carrier displacements ``u`` (K, m, 6) [mm, rad], toe and camber changes (K, m) deg.
+    """
+    wrench = np.concatenate([f, np.cross(p - centre, f)], axis=1)  # (m, 6)
+    members = wrench @ geo.g_inv.T  # (m, 6): G⁻¹ W
+    u = (members[None] * inv_k[:, None, :]) @ geo.g_inv  # (K, m, 6): G⁻ᵀ δ
+    spin = rotate_vectors(u[..., 3:], geo.spin)
+    toe, camber = toe_camber_deg(spin)
+    return members, u, toe - geo.toe0_deg, camber - geo.camber0_deg
+
+
+@dataclass(frozen=True)
+class ResponsesMany:
+    """Toe and camber changes of ``K`` states of one corner under ``m`` loads (deg).
+
+    ``toe_change_deg``, ``camber_change_deg``: (K, m); ``toe_band_deg``, ``camber_band_deg``: (K,)
+    ± half-widths of the play bands.
+    """
+
+    toe_change_deg: np.ndarray
+    camber_change_deg: np.ndarray
+    toe_band_deg: np.ndarray
+    camber_band_deg: np.ndarray
+
+
+def load_response_many(corners: list[Corner], force_N: ArrayLike) -> ResponsesMany:
+    """Toe and camber changes of many corner states under the same forces ``(m, 3)`` N at each
+    contact patch — :func:`load_response` of each, worked out together for the states that share
+    a geometry (a corner and its worn copies differ only in stiffness and play)."""
+    f = np.asarray(force_N, dtype=float).reshape(-1, 3)
+    if not np.all(np.isfinite(f)):
+        raise ValueError("force_N: must be finite")
+    K, m = len(corners), f.shape[0]
+    toe, camber = np.empty((K, m)), np.empty((K, m))
+    groups: dict[int, list[int]] = {}
+    geos = [_geometry(c) for c in corners]
+    for i, geo in enumerate(geos):
+        groups.setdefault(id(geo), []).append(i)
+    for rows in groups.values():
+        c0 = corners[rows[0]]
+        inv_k = np.zeros((len(rows), 6))
+        inv_k[:, :5] = 1.0 / np.array([corners[i].stiffness for i in rows])
+        p = np.broadcast_to(c0.contact_patch, f.shape)
+        _, _, t, cb = _responses(geos[rows[0]], c0.wheel_centre, inv_k, f, p)
+        toe[rows], camber[rows] = t, cb
+    bands = np.array([play_bands(c) for c in corners]).reshape(K, 2)
+    return ResponsesMany(toe, camber, bands[:, 0], bands[:, 1])
 
 
 class LinkStiffnessToe:
@@ -253,18 +310,31 @@ def stability_verdict(corner: Corner, lateral_force_N: float | None = None) -> S
     left corner, +y for a right one); it acts at the contact patch. ``lateral_force_N`` is its
     magnitude (default :data:`DEFAULT_VERDICT_LATERAL_FORCE_N`, shown as an assumption).
     """
+    return stability_verdicts([corner], lateral_force_N)[0]
+
+
+def stability_verdicts(corners: list[Corner], lateral_force_N: float | None = None
+                       ) -> list[StabilityVerdict]:
+    """:func:`stability_verdict` of many corners under the same force, worked out together."""
     default = lateral_force_N is None
     mag = DEFAULT_VERDICT_LATERAL_FORCE_N if default else float(lateral_force_N)
     if not np.isfinite(mag) or mag <= 0:
         raise ValueError("lateral_force_N: must be a positive number")
-    inboard = -1.0 if corner.side == "left" else 1.0
-    res = load_response(corner, [0.0, inboard * mag, 0.0])
-    dt = float(res.toe_change_deg[0])
-    band = res.toe_band_deg
-    direction = "toe-in" if dt > 0 else "toe-out"
-    if abs(dt) <= band:
-        verdict = "uncertain"
-    else:
-        verdict = "stable" if dt > 0 else "unstable"
-    return StabilityVerdict(verdict=verdict, direction=direction, toe_change_deg=dt,
-                            toe_band_deg=band, lateral_force_N=mag, force_is_default=default)
+    out: list[StabilityVerdict | None] = [None] * len(corners)
+    for side, inboard in (("left", -1.0), ("right", 1.0)):
+        idx = [i for i, c in enumerate(corners) if c.side == side]
+        if not idx:
+            continue
+        res = load_response_many([corners[i] for i in idx], [0.0, inboard * mag, 0.0])
+        for j, i in enumerate(idx):
+            dt = float(res.toe_change_deg[j, 0])
+            band = float(res.toe_band_deg[j])
+            direction = "toe-in" if dt > 0 else "toe-out"
+            if abs(dt) <= band:
+                verdict = "uncertain"
+            else:
+                verdict = "stable" if dt > 0 else "unstable"
+            out[i] = StabilityVerdict(verdict=verdict, direction=direction, toe_change_deg=dt,
+                                      toe_band_deg=band, lateral_force_N=mag,
+                                      force_is_default=default)
+    return out

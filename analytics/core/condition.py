@@ -15,7 +15,7 @@ from types import MappingProxyType
 
 import numpy as np
 
-from .compliance import load_response, stability_verdict
+from .compliance import load_response_many, stability_verdicts
 from .corner_file import Corner, with_links
 from .load_cases import CORNERS, LoadCase
 
@@ -31,6 +31,7 @@ __all__ = [
     "WhatIfRow",
     "WhatIf",
     "what_if",
+    "what_if_many",
 ]
 
 # Stiffness factor (measured ÷ new) for a bush finding without a measurement.
@@ -160,33 +161,46 @@ def what_if(corner_new: Corner, corner_measured: Corner, load_cases: Sequence[Lo
     ``position``: FL, FR, RL or RR — which force of each load case acts on this corner; the
     forces used are the changes from standing still (``LoadCase.delta_force``).
     """
+    return what_if_many(corner_new, [corner_measured], load_cases, position=position)[0]
+
+
+def what_if_many(corner_new: Corner, measured: Sequence[Corner], load_cases: Sequence[LoadCase],
+                 *, position: str) -> list[WhatIf]:
+    """:func:`what_if` of one new corner against many measured states, worked out together (the
+    states of one geometry share its line matrix; the new corner's side is computed once)."""
     if position not in CORNERS:
         raise ValueError(f"position: must be one of {', '.join(CORNERS)}")
     expected_side = "left" if position.endswith("L") else "right"
-    for label, c in (("corner_new", corner_new), ("corner_measured", corner_measured)):
+    for label, c in (("corner_new", corner_new), *(("corner_measured", m) for m in measured)):
         if c.side != expected_side:
             raise ValueError(f"{label}: is a {c.side} corner but position {position} is {expected_side}")
-    if corner_new.link_names != corner_measured.link_names:
-        raise ValueError("corner_measured: must have the same links as corner_new")
+    for m in measured:
+        if corner_new.link_names != m.link_names:
+            raise ValueError("corner_measured: must have the same links as corner_new")
     forces = np.array([lc.delta_force(position) for lc in load_cases]).reshape(-1, 3)
-    new = load_response(corner_new, forces)
-    meas = load_response(corner_measured, forces)
-    rows = tuple(
-        WhatIfRow(
-            case=lc.name,
-            toe_change_new_deg=float(new.toe_change_deg[i]),
-            toe_change_measured_deg=float(meas.toe_change_deg[i]),
-            camber_change_new_deg=float(new.camber_change_deg[i]),
-            camber_change_measured_deg=float(meas.camber_change_deg[i]),
-            toe_band_new_deg=new.toe_band_deg, toe_band_measured_deg=meas.toe_band_deg,
-            camber_band_new_deg=new.camber_band_deg, camber_band_measured_deg=meas.camber_band_deg,
-            assumptions=tuple(lc.assumption_lines()),
-        )
-        for i, lc in enumerate(load_cases)
-    )
-    sn = sm = None
+    res = load_response_many([corner_new, *measured], forces)
+    assumptions = [tuple(lc.assumption_lines()) for lc in load_cases]
+    sn = None
+    sm: list[str | None] = [None] * len(measured)
     if position.startswith("R"):
-        sn = stability_verdict(corner_new).note
-        sm = stability_verdict(corner_measured).note
-    return WhatIf(position=position, rows=rows, stability_new=sn, stability_measured=sm,
-                  notes=(FINDINGS_NOTE, DEFLECTION_ASSUMPTION))
+        verdicts = stability_verdicts([corner_new, *measured])
+        sn, sm = verdicts[0].note, [v.note for v in verdicts[1:]]
+    tn, cn = res.toe_change_deg[0].tolist(), res.camber_change_deg[0].tolist()
+    tbn, cbn = float(res.toe_band_deg[0]), float(res.camber_band_deg[0])
+    out = []
+    for k in range(len(measured)):
+        tm, cm = res.toe_change_deg[k + 1].tolist(), res.camber_change_deg[k + 1].tolist()
+        tbm, cbm = float(res.toe_band_deg[k + 1]), float(res.camber_band_deg[k + 1])
+        rows = tuple(
+            WhatIfRow(
+                case=lc.name, toe_change_new_deg=tn[i], toe_change_measured_deg=tm[i],
+                camber_change_new_deg=cn[i], camber_change_measured_deg=cm[i],
+                toe_band_new_deg=tbn, toe_band_measured_deg=tbm,
+                camber_band_new_deg=cbn, camber_band_measured_deg=cbm,
+                assumptions=assumptions[i],
+            )
+            for i, lc in enumerate(load_cases)
+        )
+        out.append(WhatIf(position=position, rows=rows, stability_new=sn, stability_measured=sm[k],
+                          notes=(FINDINGS_NOTE, DEFLECTION_ASSUMPTION)))
+    return out

@@ -193,3 +193,25 @@ def test_the_batched_stiffness_sweep_matches_one_corner_per_stiffness():
     one_by_one = [float(load_response(with_links(corner, stiffness={"toe link": float(k)}),
                                       force).toe_change_deg[0]) for k in ks]
     np.testing.assert_allclose(batched, one_by_one, rtol=1e-10, atol=1e-12)
+
+
+def test_many_states_at_once_give_each_state_s_own_response():
+    # the batched path is the same model: each worn state (and a corner of another geometry, the
+    # statics-by-hand pair above) against load_response / stability_verdict of that state alone
+    from analytics.core.compliance import load_response_many, stability_verdicts
+
+    new = demo_corner("rear", "left")
+    states = [new, with_links(new, stiffness={"toe link": 900.0}, play=[0.2, 0, 0, 0, 0.4]),
+              with_links(new, stiffness=[3000.0, 2500.0, 800.0, 4000.0, 350.0]),
+              lateral_pair_corner(1500.0)]
+    forces = np.array([[0.0, -3500.0, 0.0], [-2000.0, 0.0, 0.0], [-800.0, -2500.0, 0.0]])
+    many = load_response_many(states, forces)
+    for k, c in enumerate(states):
+        one = load_response(c, forces)
+        np.testing.assert_allclose(many.toe_change_deg[k], one.toe_change_deg, rtol=1e-12, atol=1e-15)
+        np.testing.assert_allclose(many.camber_change_deg[k], one.camber_change_deg, rtol=1e-12,
+                                   atol=1e-15)
+        assert many.toe_band_deg[k] == pytest.approx(one.toe_band_deg, rel=1e-12)
+    mixed = [demo_corner("rear", "right"), *states]
+    verdicts = stability_verdicts(mixed, 3000.0)
+    assert verdicts == [stability_verdict(c, 3000.0) for c in mixed]
