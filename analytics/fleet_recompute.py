@@ -60,7 +60,13 @@ from analytics.core.drift import (
     fit_drift,
     theil_sen_stack,
 )
-from analytics.core.wear import BAND_SAMPLES, PLAY_MODEL, StiffnessCriterion, forecast_play
+from analytics.core.wear import (
+    BAND_SAMPLES,
+    NEED_TWO_PLAY_KM,
+    PLAY_MODEL,
+    StiffnessCriterion,
+    forecast_play,
+)
 from inspections.models import Platform, Vehicle
 from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
 
@@ -139,6 +145,42 @@ SELECT v.id AS vehicle_id,
   COALESCE((SELECT max(id) FROM inspections_componentcheck c WHERE c.vehicle_id = v.id), 0) AS c,
   COALESCE((SELECT max(id) FROM inspections_serviceevent e WHERE e.vehicle_id = v.id), 0) AS e
 FROM inspections_vehicle v WHERE v.id = ANY(%s)"""
+
+
+@dataclass
+class ChunkFrames:
+    """The current rows of some vehicles: readings (of current sessions), component checks and
+    service events, as read by ``READINGS_SQL``/``CHECKS_SQL``/``EVENTS_SQL``, each with ``t``
+    (int64 ns UTC of its time column)."""
+
+    readings: pd.DataFrame
+    checks: pd.DataFrame
+    events: pd.DataFrame
+
+    def of(self, ids) -> ChunkFrames:
+        """The rows of vehicles ``ids`` only."""
+        keep = pd.Index(ids)
+        return ChunkFrames(*(f[f["vehicle_id"].isin(keep)].reset_index(drop=True)
+                             for f in (self.readings, self.checks, self.events)))
+
+
+def read_frames(ids: list[int]) -> ChunkFrames:
+    """One ``COPY`` per table of vehicles ``ids`` (see :class:`ChunkFrames`)."""
+    rd = read_frames_readings(ids)
+    ck = _copy_frame(CHECKS_SQL, [ids], dtypes={"corner": str, "part": str, "findings": str,
+                                                "verdict": str, "defect_category": str})
+    ev = _copy_frame(EVENTS_SQL, [ids], dtypes={"kind": str, "corner": str, "part": str,
+                                                "reason": str})
+    for frame, col in ((ck, "checked_at"), (ev, "performed_at")):
+        frame["t"] = _ns(frame[col]) if len(frame) else np.empty(0, np.int64)
+    return ChunkFrames(rd, ck, ev)
+
+
+def read_frames_readings(ids: list[int]) -> pd.DataFrame:
+    """The readings frame of :func:`read_frames` alone."""
+    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
+    rd["t"] = _ns(rd["measured_at"]) if len(rd) else np.empty(0, np.int64)
+    return rd
 
 
 def _ns(col: pd.Series) -> np.ndarray:
@@ -637,10 +679,12 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
 
 
 def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | None = None,
-                  stats: ChunkStats | None = None) -> dict[int, tuple[dict, list]]:
+                  stats: ChunkStats | None = None, frames: ChunkFrames | None = None
+                  ) -> dict[int, tuple[dict, list]]:
     """Payload and advice of each vehicle of one platform chunk: ``{vehicle_id: (payload, advice)}``.
 
-    ``only``: analyse just these vehicles (others are skipped). Pure reads; nothing is written.
+    ``only``: analyse just these vehicles (others are skipped); ``frames``: their rows already
+    read (:func:`read_frames` of a superset), else they are read here. Nothing is written.
     """
     st = stats or ChunkStats()
     T = st.seconds
@@ -655,19 +699,15 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     ids = [i for i in ids if i in vehicles]
     for v in vehicles.values():
         v.platform = platform
-    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
-    ck = _copy_frame(CHECKS_SQL, [ids], dtypes={"corner": str, "part": str, "findings": str,
-                                                "verdict": str, "defect_category": str})
-    ev = _copy_frame(EVENTS_SQL, [ids], dtypes={"kind": str, "corner": str, "part": str,
-                                                "reason": str})
+    got = read_frames(ids) if frames is None else frames.of(ids)
+    rd, ck, ev = got.readings, got.checks, got.events
     T["read"] = T.get("read", 0) + time.perf_counter() - t0
     t1 = time.perf_counter()
 
     tz_of = {vid: vehicles[vid].workshop.time_zone for vid in ids}
     now = timezone.now()
     today_of = {vid: timezone.localtime(now, ZoneInfo(tz)).date() for vid, tz in tz_of.items()}
-    for frame, col in ((rd, "measured_at"), (ck, "checked_at"), (ev, "performed_at")):
-        frame["t"] = _ns(frame[col]) if len(frame) else np.empty(0, np.int64)
+    for frame in (rd, ck, ev):
         tzs = frame["vehicle_id"].map(tz_of).to_numpy(dtype=object).astype(str) if len(frame) else \
             np.empty(0, str)
         frame["day"] = _local_day(frame["t"].to_numpy(), tzs) if len(frame) else np.empty(0, np.int64)
@@ -1082,8 +1122,16 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
                     current_date=today_of[vid], km_per_day=kmpd.get(vid),
                     horizon_end=float(cur[j]) + HORIZON_KM, model=PLAY_MODEL)
         where = play_rows.groupby("gk").indices
-        for k in keys:  # the rest: the core itself (it explains the refusal)
+        vals = play_rows[["odometer_km", "play_mm"]].to_numpy(float)
+        for i, k in enumerate(keys):  # the rest: the core itself (it explains the refusal)
             if k in play_fc:
+                continue
+            v = vals[where[k]]
+            if not f.ok[i] and not xdec.get(k, False) and np.all(np.isfinite(v)) \
+                    and np.all(v[:, 1] >= 0):
+                # valid values, fewer than two distinct km since the last replacement: the
+                # core's own refusal, without refitting the series to say so
+                pending[k][3]["note"] = NEED_TWO_PLAY_KM
                 continue
             st.fallback_series += 1
             vid, corner, code, entry, _ = pending[k]
@@ -1284,11 +1332,22 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     return len(mine)
 
 
-def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> ChunkStats:
+def recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool = False) -> ChunkStats:
     """Analyse one platform chunk: skip vehicles whose current inputs already have a result,
-    analyse the rest vectorised and store them. Safe to run twice (the second run writes nothing)."""
+    analyse the rest vectorised and store them. Safe to run twice (the second run writes nothing).
+
+    ``pool``: the chunk holds every vehicle of the platform; its pooled rates are refreshed first
+    from the chunk's own read (:func:`platform_pool_fast`), so the platform is read once.
+    """
     st = ChunkStats()
     t0 = time.perf_counter()
+    frames = None
+    if pool:
+        frames = read_frames(list(vehicle_ids))
+        st.seconds["read"] = time.perf_counter() - t0
+        platform_pool_fast(platform=Platform.objects.get(pk=platform_id), readings=frames.readings)
+        st.seconds["pool"] = time.perf_counter() - t0 - st.seconds["read"]
+    t1 = time.perf_counter()
     stamp = _platform_stamp(platform_id)
     keys = input_keys(list(vehicle_ids), stamp)
     st.keys = keys
@@ -1296,12 +1355,13 @@ def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> ChunkStats:
         vehicle_id__in=list(keys), model_version=MODEL_VERSION,
         input_key__in=set(keys.values())).values_list("vehicle_id", "input_key"))
     todo = {v for v, k in keys.items() if (v, k) not in done}
-    st.seconds["keys"] = time.perf_counter() - t0
-    results = analyse_chunk(platform_id, list(keys), only=todo, stats=st) if todo else {}
-    t1 = time.perf_counter()
+    st.seconds["keys"] = time.perf_counter() - t1
+    results = analyse_chunk(platform_id, list(keys), only=todo, stats=st, frames=frames) \
+        if todo else {}
+    t2 = time.perf_counter()
     vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=list(results)).only("id", "owner_id")}
     st.written = _write(platform_id, keys, results, vehicles)
-    st.seconds["write"] = time.perf_counter() - t1
+    st.seconds["write"] = time.perf_counter() - t2
     st.seconds["total"] = time.perf_counter() - t0
     return st
 
@@ -1324,45 +1384,51 @@ def chunks(size: int = CHUNK_VEHICLES) -> list[tuple[int, list[int]]]:
 
 
 def fleet_recompute(*, chunk_size: int = CHUNK_VEHICLES, fan_out: bool = False) -> int:
-    """Refresh pooled rates, then every chunk. ``fan_out``: send the chunks to the workers as
-    ``analytics.tasks.recompute_chunk`` (after commit); otherwise run them here. Returns the
-    vehicles covered."""
+    """Refresh pooled rates, then every chunk. A platform that fits in one chunk has its pooled
+    rates refreshed by that chunk from its own read; a larger one here first. ``fan_out``: send
+    the chunks to the workers as ``analytics.tasks.recompute_chunk`` (after commit); otherwise
+    run them here. Returns the vehicles covered."""
     from . import tasks
 
-    for platform in Platform.objects.all():
-        platform_pool_fast(platform=platform)
     todo = chunks(chunk_size)
-    if fan_out:
-        for p, ids in todo:
-            transaction.on_commit(lambda p=p, ids=ids: tasks.recompute_chunk.apply_async(args=[p, ids]))
-    else:
-        for p, ids in todo:
-            recompute_chunk(p, ids)
+    per_platform: dict[int, int] = {}
+    for p, _ids in todo:
+        per_platform[p] = per_platform.get(p, 0) + 1
+    for platform in Platform.objects.filter(pk__in=[p for p, n in per_platform.items() if n > 1]):
+        platform_pool_fast(platform=platform)
+    for p, ids in todo:
+        whole = per_platform[p] == 1
+        if fan_out:
+            transaction.on_commit(lambda p=p, ids=ids, whole=whole: tasks.recompute_chunk.apply_async(
+                args=[p, ids], kwargs={"pool": whole}))
+        else:
+            recompute_chunk(p, ids, pool=whole)
     return sum(len(ids) for _, ids in todo)
 
 
 # --------------------------------------------------------------------------- pooled rates
 
 
-def platform_pool_fast(*, platform: Platform) -> int:
+def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = None) -> int:
     """:func:`analytics.services.platform_pool` for a whole platform at once.
 
     One read of the platform's current readings; the same fits (as-adjusted sessions start a new
     segment; steps screened, the core's ``fit_drift`` where the screen signals) and the same
     shrinkage (:func:`analytics.core.drift.shrink_slopes` with ``shrink_drift``'s variances).
     A pooled rate is only rewritten when it changed, so a rerun keeps the vehicles' input keys.
-    Returns the pooled rates stored.
+    ``readings``: the platform's current readings already read (``ChunkFrames.readings`` of all
+    its vehicles), else they are read here. Returns the pooled rates stored.
     """
     from analytics.core.drift import MIN_READINGS_OWN_SCALE, shrink_slopes
 
-    ids = list(platform.vehicles.values_list("pk", flat=True))
-    if not ids:
-        return 0
-    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
+    if readings is None:
+        ids = list(platform.vehicles.values_list("pk", flat=True))
+        if not ids:
+            return 0
+        readings = read_frames_readings(ids)
+    rd = readings
     if rd.empty:
         return 0
-    rd["t"] = _ns(rd["measured_at"])
-    rd["day"] = 0
     found = rd[rd["kind"] == "as_found"]
     adj = rd.loc[rd["kind"] == "as_adjusted", ["vehicle_id", "t"]].drop_duplicates()
     if found.empty:

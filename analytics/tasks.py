@@ -29,16 +29,18 @@ def recompute_fleet() -> int:
 
 
 @shared_task(name="analytics.tasks.recompute_chunk", acks_late=True, **RETRY)
-def recompute_chunk(platform_id: int, vehicle_ids: list[int]) -> int:
-    """One platform chunk of the fleet recompute; returns the results written (0 on a rerun)."""
+def recompute_chunk(platform_id: int, vehicle_ids: list[int], pool: bool = False) -> int:
+    """One platform chunk of the fleet recompute; returns the results written (0 on a rerun).
+    ``pool``: the chunk is the whole platform and refreshes its pooled rates first."""
     from . import fleet_recompute
 
-    return fleet_recompute.recompute_chunk(platform_id, vehicle_ids).written
+    return fleet_recompute.recompute_chunk(platform_id, vehicle_ids, pool=pool).written
 
 
 @shared_task(name="analytics.tasks.pool_platform", acks_late=True, **RETRY)
 def pool_platform(platform_id: int) -> int:
-    """Refresh one platform's pooled drift rates (the first phase of a fanned-out recompute)."""
+    """Refresh one platform's pooled drift rates (the first phase of a fanned-out recompute of a
+    platform larger than one chunk)."""
     from inspections.models import Platform
 
     from . import fleet_recompute

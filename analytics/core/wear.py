@@ -57,6 +57,8 @@ __all__ = [
 
 #: Points sampled across the stiffness band at each km (odd, so the centre is one of them).
 BAND_SAMPLES: int = 9
+#: Why no play forecast: the current segment (since the last replacement) lacks two distinct km.
+NEED_TWO_PLAY_KM = "need play checks at two or more distinct odometer readings"
 PLAY_MODEL: str = "ball-joint play: Theil–Sen line with prediction band"
 BUSH_MODEL: str = "bush stiffness: log-linear Theil–Sen decay, criterion evaluated across band"
 
@@ -126,7 +128,7 @@ def forecast_play(
         confidence=confidence,
     )
     if fit.trend is None:
-        raise ValueError("need play checks at two or more distinct odometer readings")
+        raise ValueError(NEED_TWO_PLAY_KM)
     fc = forecast_drift(
         fit.trend,
         current_km=current_km,
