@@ -76,6 +76,7 @@ from .models import (
     AdviceItem,
     AnalysisResult,
     PooledRate,
+    compact_payload,
     drift_rate_rows,
     payload_flips,
 )
@@ -1268,11 +1269,38 @@ def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
             cp.write_row(row)
 
 
+_LZ4: list[bool] = []
+
+
+def _stage_compression(cur) -> str:
+    """`` COMPRESSION lz4`` where the server has lz4 (see migration 0007: the staged payloads
+    move into the results table as they were compressed, so the stage compresses as it does)."""
+    if not _LZ4:
+        cur.execute("SELECT 1 FROM pg_settings WHERE name = 'default_toast_compression' "
+                    "AND 'lz4' = ANY(enumvals)")
+        _LZ4.append(cur.fetchone() is not None)
+    return " COMPRESSION lz4" if _LZ4[0] else ""
+
+
 RESULT_INSERT_SQL = """INSERT INTO "analytics_analysisresult"
        (vehicle_id, input_key, model_version, computed_at, payload, flips_to_toe_out)
 SELECT vehicle_id, input_key, %s, now(), payload, flips FROM fleet_result_stage ORDER BY vehicle_id
 ON CONFLICT (vehicle_id, input_key, model_version) DO NOTHING
 RETURNING id, vehicle_id"""
+
+
+def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
+    """:func:`analytics.models.outcomes_store` with ``COPY``: staged, then inserted where new."""
+    if not outcomes:
+        return
+    cur.execute("DROP TABLE IF EXISTS fleet_outcome_stage")
+    cur.execute(f"CREATE TEMP TABLE fleet_outcome_stage (key text, entry jsonb"
+                f"{_stage_compression(cur)}) ON COMMIT DROP")
+    _copy_rows(cur, "fleet_outcome_stage", ("key", "entry"),
+               ((k, json.dumps(e)) for k, e in sorted(outcomes.items())))
+    cur.execute('INSERT INTO "analytics_complianceoutcome" (key, entry, created_at) '
+                "SELECT key, entry, now() FROM fleet_outcome_stage ORDER BY key "
+                "ON CONFLICT (key) DO NOTHING")
 
 
 def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
@@ -1294,13 +1322,20 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
         previous.setdefault(v, set()).add(k)
     dumps = json.dumps
+    stored: dict[int, dict] = {}
+    outcomes: dict[str, dict] = {}
+    memo: dict[int, str] = {}  # the cached compliance entries are shared between payloads
+    for v in vids:
+        stored[v], used = compact_payload(results[v][0], memo)
+        outcomes.update(used)
     with transaction.atomic(), connection.cursor() as dj:
         cur = dj.cursor  # the psycopg cursor
+        _store_outcomes(cur, outcomes)
         cur.execute("DROP TABLE IF EXISTS fleet_result_stage")  # left by an enclosing transaction
         cur.execute("CREATE TEMP TABLE fleet_result_stage (vehicle_id bigint, input_key text, "
-                    "payload jsonb, flips boolean) ON COMMIT DROP")
+                    f"payload jsonb{_stage_compression(cur)}, flips boolean) ON COMMIT DROP")
         _copy_rows(cur, "fleet_result_stage", ("vehicle_id", "input_key", "payload", "flips"),
-                   ((v, keys[v], dumps(results[v][0]), payload_flips(results[v][0])) for v in vids))
+                   ((v, keys[v], dumps(stored[v]), payload_flips(results[v][0])) for v in vids))
         cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
         mine = {int(v): int(rid) for rid, v in cur.fetchall()}
         if not mine:
@@ -1327,7 +1362,7 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
         for v in owners:
             if v in mine:
                 r = AnalysisResult(pk=mine[v], vehicle=vehicles[v], input_key=keys[v],
-                                   model_version=MODEL_VERSION, payload=results[v][0])
+                                   model_version=MODEL_VERSION, payload=stored[v])
                 owner_report_on_commit(result=r, previous_keys=previous.get(v, set()))
     return len(mine)
 

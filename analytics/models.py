@@ -5,6 +5,9 @@ ids the analysis saw, so a job run twice — or two runs at once — writes one 
 """
 from __future__ import annotations
 
+import hashlib
+import json
+
 from django.conf import settings
 from django.db import models
 
@@ -46,6 +49,79 @@ class AnalysisResult(models.Model):
                                     name="one_result_per_inputs"),
         ]
         indexes = [models.Index(fields=["vehicle", "-computed_at"])]
+
+
+class ComplianceOutcome(models.Model):
+    """One corner position's load-case comparison (new against measured) and outer-rear verdict,
+    stored once and referenced from every result that has it.
+
+    Content-addressed: ``key`` is the SHA-256 of the entry's canonical JSON, so the many vehicles
+    of a platform whose parts were found in the same condition share one row, and writing it
+    again changes nothing. A result's payload keeps, per position, the key and the few figures
+    the fleet view filters and sorts on (:data:`OUTCOME_INLINE`); :func:`expand_payload` puts
+    the whole entries back.
+    """
+
+    key = models.CharField(max_length=64, primary_key=True)
+    entry = models.JSONField()
+    created_at = models.DateTimeField(auto_now_add=True)
+
+
+#: Figures of a compliance entry kept in the result's own payload (the fleet view's flip list).
+OUTCOME_INLINE = ("verdict_new", "verdict_measured", "toe_change_new_deg",
+                  "toe_change_measured_deg", "toe_band_measured_deg", "lateral_force_N",
+                  "flips_to_toe_out")
+
+
+def outcome_key(entry: dict) -> str:
+    """SHA-256 (hex) of the entry's canonical JSON (sorted keys, no spaces)."""
+    text = json.dumps(entry, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def compact_payload(payload: dict, memo: dict | None = None) -> tuple[dict, dict[str, dict]]:
+    """The payload as stored — each compliance entry replaced by its outcome key and inline
+    figures — and the outcomes it refers to (``{key: entry}``). ``memo``: keys already worked
+    out, by ``id(entry)``, for entries shared between payloads (the caller keeps them alive)."""
+    comp = payload.get("compliance") or {}
+    outcomes: dict[str, dict] = {}
+    stored: dict[str, dict] = {}
+    for pos, entry in comp.items():
+        if "outcome" in entry:  # already stored by reference
+            stored[pos] = entry
+            continue
+        if memo is None:
+            k = outcome_key(entry)
+        else:
+            k = memo.get(id(entry))
+            if k is None:
+                k = memo[id(entry)] = outcome_key(entry)
+        outcomes[k] = entry
+        stored[pos] = {"outcome": k, **{f: entry[f] for f in OUTCOME_INLINE if f in entry}}
+    return {**payload, "compliance": stored}, outcomes
+
+
+def outcomes_store(outcomes: dict[str, dict]) -> None:
+    """Store outcomes not stored yet (an existing key holds the same entry by construction)."""
+    if outcomes:
+        ComplianceOutcome.objects.bulk_create(
+            [ComplianceOutcome(key=k, entry=e) for k, e in sorted(outcomes.items())],
+            ignore_conflicts=True, batch_size=500)
+
+
+def expand_payload(payload: dict) -> dict:
+    """The payload with its compliance entries whole again (one query; a payload stored before
+    outcomes were shared already holds them)."""
+    comp = payload.get("compliance") or {}
+    keys = [e["outcome"] for e in comp.values() if "outcome" in e]
+    if not keys:
+        return payload
+    entries = dict(ComplianceOutcome.objects.filter(key__in=keys).values_list("key", "entry"))
+    missing = sorted(set(keys) - set(entries))
+    if missing:
+        raise ComplianceOutcome.DoesNotExist(f"compliance outcome {missing[0]} is not stored")
+    return {**payload, "compliance": {pos: entries[e["outcome"]] if "outcome" in e else e
+                                      for pos, e in comp.items()}}
 
 
 def payload_flips(payload: dict) -> bool:

@@ -21,7 +21,14 @@ from inspections import selectors as records
 from inspections.models import Platform, Vehicle
 from inspections.scoping import scoped
 
-from .models import AdviceAction, AdviceItem, AnalysisResult, DriftRate, PooledRate
+from .models import (
+    AdviceAction,
+    AdviceItem,
+    AnalysisResult,
+    DriftRate,
+    PooledRate,
+    expand_payload,
+)
 
 CORNERS = ("FL", "FR", "RL", "RR")
 ANGLES = ("toe", "camber")
@@ -179,7 +186,7 @@ def vehicle_picture(vehicle: Vehicle, result: AnalysisResult) -> dict:
     The charts are drawn on every call (about 0.2 ms each, see :mod:`analytics.charts`), so they
     never go stale and no cache or pre-drawing job is needed.
     """
-    payload = result.payload
+    payload = expand_payload(result.payload)
     demo = _is_demo(vehicle)
     points: dict[tuple[str, str, str], list] = {}
     for r in records.readings_of(vehicle).select_related("session"):

@@ -28,7 +28,9 @@ from .models import (
     AnalysisResult,
     DriftRate,
     PooledRate,
+    compact_payload,
     drift_rate_rows,
+    outcomes_store,
     payload_flips,
 )
 
@@ -58,11 +60,13 @@ def vehicle_analyse(*, vehicle_id: int) -> AnalysisResult:
     if existing is not None:
         return existing
     payload, _ = analysis.analyse(vehicle_data(vehicle))
+    stored, outcomes = compact_payload(payload)
     previous_keys = set(AdviceItem.objects.filter(vehicle=vehicle).values_list("key", flat=True))
     try:
         with transaction.atomic():
+            outcomes_store(outcomes)
             result = AnalysisResult.objects.create(vehicle=vehicle, input_key=key,
-                                                   model_version=MODEL_VERSION, payload=payload,
+                                                   model_version=MODEL_VERSION, payload=stored,
                                                    flips_to_toe_out=payload_flips(payload))
             owner_report_on_commit(result=result, previous_keys=previous_keys)
             AdviceItem.objects.filter(vehicle=vehicle).exclude(result=result).delete()

@@ -180,7 +180,7 @@ def bench_recompute(proc):
     raw_s = min(r[0] for r in raw)
     with connection.cursor() as cur:
         cur.execute("TRUNCATE analytics_analysisresult, analytics_adviceitem, analytics_driftrate, "
-                    "analytics_ownerreport, analytics_pooledrate")
+                    "analytics_ownerreport, analytics_pooledrate, analytics_complianceoutcome")
     # owners are given vehicles by the PDF measurement of an earlier run; their delayed PDFs would
     # run on the workers while the later rows are measured, so the recompute runs without them
     Vehicle.objects.filter(owner__isnull=False).update(owner=None)

@@ -1,6 +1,7 @@
 """The vectorised fleet recompute gives the per-vehicle analysis, writes once and covers every
 vehicle exactly once. Invented demo data only (the small demo and a small large-fleet build)."""
 import datetime as dt
+import json
 import math
 
 import pytest
@@ -136,3 +137,19 @@ def test_a_whole_platform_chunk_pools_from_its_own_read_as_the_separate_pool_pha
     assert sorted(PooledRate.objects.filter(platform_id=platform_id).values_list(*fields)) == separate
     assert st.written == AnalysisResult.objects.filter(vehicle_id__in=ids).count() == len(ids)
     assert fr.recompute_chunk(platform_id, ids, pool=True).written == 0  # pooled rates unchanged
+
+
+def test_stored_results_share_compliance_outcomes_and_expand_to_the_whole_analysis():
+    from analytics.models import OUTCOME_INLINE, ComplianceOutcome, expand_payload
+
+    _fleet()
+    for vehicle in Vehicle.objects.select_related("platform", "workshop"):
+        stored = services.latest_result(vehicle).payload
+        ref, _ = analysis.analyse(vehicle_data(vehicle))
+        for entry in stored["compliance"].values():
+            assert set(entry) <= {"outcome", *OUTCOME_INLINE}  # by reference, figures inline
+        # as stored: JSON (tuples become lists; floats round-trip exactly)
+        assert expand_payload(stored)["compliance"] == json.loads(json.dumps(ref["compliance"]))
+    # vehicles whose parts were found alike share rows: fewer rows than corners analysed
+    n_corners = 4 * Vehicle.objects.count()
+    assert 0 < ComplianceOutcome.objects.count() < n_corners

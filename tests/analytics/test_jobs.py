@@ -5,7 +5,7 @@ from unittest import mock
 from analytics import services
 from analytics.core.advice import MODEL_VERSION
 from analytics.core.caution import CAUTION
-from analytics.models import AdviceItem, AnalysisRequest, AnalysisResult
+from analytics.models import AdviceItem, AnalysisRequest, AnalysisResult, expand_payload
 from inspections import services as records
 from inspections.models import AlignmentSession
 from tests import factories as f
@@ -62,7 +62,7 @@ class AnalysisServiceTests(PersonaTestCase):
             odometer_km=60_000, corner="RL", part="rear_toe_link_inner_bush",
             verdict="unfit", findings=["debonding"], defect_category="major")
         result = services.vehicle_analyse(vehicle_id=self.car_a.pk)
-        rl = result.payload["compliance"]["RL"]
+        rl = expand_payload(result.payload)["compliance"]["RL"]
         assert [r["case"] for r in rl["rows"]] == ["cornering", "braking", "lift-off",
                                                    "braking in a turn"]
         # The debonded toe-link bush (stiffness factor 0.3, an assumption) turns the demo
