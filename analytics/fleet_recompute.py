@@ -38,6 +38,7 @@ from types import SimpleNamespace
 from zoneinfo import ZoneInfo
 
 import numpy as np
+import orjson
 import pandas as pd
 from django.db import connection, transaction
 from django.utils import timezone
@@ -551,7 +552,6 @@ _CACHES: dict[int, tuple[str, PlatformCache]] = {}
 def _fingerprint(platform: Platform) -> str:
     """Everything the caches depend on: the platform's values, specs, limits, corner files and
     pooled rates (a long-lived worker notices an edited spec or a refreshed pooled rate)."""
-    import json
 
     parts = [
         {f.attname: getattr(platform, f.attname) for f in platform._meta.concrete_fields},
@@ -715,7 +715,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     for col in ("corner", "part", "reason"):
         ev[col] = ev[col].fillna("")
     ck["defect_category"] = ck["defect_category"].fillna("")
-    ck["findings"] = [json.loads(s) for s in ck["findings"]]
+    ck["findings"] = [orjson.loads(s) for s in ck["findings"]]
 
     # ---- per-vehicle scalars: odometer now, km per day, last marks
     odo = {}
@@ -1262,6 +1262,12 @@ def _advice_key(a: dict) -> str:
     return key(a)
 
 
+def _json(obj) -> str:
+    """JSON text of a payload part: ``orjson`` (several times faster than ``json.dumps``; the same
+    shortest float representations; numpy scalars as numbers)."""
+    return orjson.dumps(obj, option=orjson.OPT_SERIALIZE_NUMPY).decode()
+
+
 def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
     """``COPY table (columns) FROM STDIN`` of an iterable of tuples (psycopg adapts the values)."""
     with cur.copy(f"COPY {table} ({', '.join(columns)}) FROM STDIN") as cp:
@@ -1297,7 +1303,7 @@ def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
     cur.execute(f"CREATE TEMP TABLE fleet_outcome_stage (key text, entry jsonb"
                 f"{_stage_compression(cur)}) ON COMMIT DROP")
     _copy_rows(cur, "fleet_outcome_stage", ("key", "entry"),
-               ((k, json.dumps(e)) for k, e in sorted(outcomes.items())))
+               ((k, _json(e)) for k, e in sorted(outcomes.items())))
     cur.execute('INSERT INTO "analytics_complianceoutcome" (key, entry, created_at) '
                 "SELECT key, entry, now() FROM fleet_outcome_stage ORDER BY key "
                 "ON CONFLICT (key) DO NOTHING")
@@ -1321,7 +1327,7 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     owners = [v for v in vids if vehicles[v].owner_id is not None]
     for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
         previous.setdefault(v, set()).add(k)
-    dumps = json.dumps
+    dumps = _json
     stored: dict[int, dict] = {}
     outcomes: dict[str, dict] = {}
     memo: dict[int, str] = {}  # the cached compliance entries are shared between payloads
