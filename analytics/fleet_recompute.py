@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import datetime as dt
 import io
-import json
 import logging
 import math
 import time
@@ -549,29 +548,29 @@ class PlatformCache:
 _CACHES: dict[int, tuple[str, PlatformCache]] = {}
 
 
-def _fingerprint(platform: Platform) -> str:
-    """Everything the caches depend on: the platform's values, specs, limits, corner files and
-    pooled rates (a long-lived worker notices an edited spec or a refreshed pooled rate)."""
+def _fingerprint(platform_id: int) -> str:
+    """Everything the caches depend on — the platform's row and all rows of its specs, limits,
+    corner files and pooled rates — as one digest computed by the database in one query (a
+    long-lived worker notices an edited spec or a refreshed pooled rate)."""
+    from inspections.models import AlignmentSpec, ComponentLimit, PlatformCorner
 
-    parts = [
-        {f.attname: getattr(platform, f.attname) for f in platform._meta.concrete_fields},
-        sorted(platform.specs.values_list("axle", "quantity", "nominal_deg", "tolerance_deg",
-                                          "source")),
-        sorted(platform.limits.values_list("part", "max_play_mm", "refused_findings", "source")),
-        sorted(platform.corners.values_list("axle", "geometry", "source"), key=lambda r: r[0]),
-        sorted(platform.pooled_rates.values_list("corner", "angle", "mean", "mean_se", "tau2",
-                                                 "vehicles", "method", "computed_at")),
-    ]
-    return json.dumps(parts, default=str, sort_keys=True)
+    rows = " ".join(
+        f"(SELECT string_agg(row_to_json(x)::text, ',' ORDER BY x.id) FROM {m._meta.db_table} x "
+        f"WHERE x.platform_id = %(p)s),"
+        for m in (AlignmentSpec, ComponentLimit, PlatformCorner, PooledRate))
+    sql = (f"SELECT md5(concat_ws('|', (SELECT row_to_json(x)::text FROM "
+           f"{Platform._meta.db_table} x WHERE x.id = %(p)s), {rows.rstrip(',')}))")
+    with connection.cursor() as cur:
+        cur.execute(sql, {"p": platform_id})
+        return cur.fetchone()[0]
 
 
 def platform_cache(platform_id: int) -> PlatformCache:
     """A process-local cache of the platform, rebuilt when anything it depends on changed."""
-    platform = Platform.objects.get(pk=platform_id)
-    key = _fingerprint(platform)
+    key = _fingerprint(platform_id)
     hit = _CACHES.get(platform_id)
     if hit is None or hit[0] != key:
-        hit = (key, PlatformCache(platform))
+        hit = (key, PlatformCache(Platform.objects.get(pk=platform_id)))
         _CACHES[platform_id] = hit
     return hit[1]
 

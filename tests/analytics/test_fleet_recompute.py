@@ -153,3 +153,21 @@ def test_stored_results_share_compliance_outcomes_and_expand_to_the_whole_analys
     # vehicles whose parts were found alike share rows: fewer rows than corners analysed
     n_corners = 4 * Vehicle.objects.count()
     assert 0 < ComplianceOutcome.objects.count() < n_corners
+
+
+def test_a_worker_s_platform_cache_is_rebuilt_when_a_spec_or_a_pooled_rate_changes():
+    from analytics.models import PooledRate
+    from inspections.models import AlignmentSpec
+
+    _fleet()
+    platform_id, _ids = fr.chunks()[0]
+    first = fr.platform_cache(platform_id)
+    assert fr.platform_cache(platform_id) is first  # nothing changed: kept
+    spec = AlignmentSpec.objects.filter(platform_id=platform_id).first()
+    spec.tolerance_deg += 0.01
+    spec.save()
+    second = fr.platform_cache(platform_id)
+    assert second is not first
+    assert second.specs[(spec.axle, spec.quantity)].tolerance_deg == spec.tolerance_deg
+    PooledRate.objects.filter(platform_id=platform_id).update(mean=0.0)
+    assert fr.platform_cache(platform_id) is not second
