@@ -338,24 +338,40 @@ def _band(x, slope, se, xref, yref, rsd, n):
     return centre - half, centre, centre + half
 
 
-def _first_true_vec(grid: np.ndarray, flags: np.ndarray, fn, cur: np.ndarray) -> np.ndarray:
-    """Per row: the first x where ``fn`` holds (grid, then bisection); NaN where never."""
-    anyf = flags.any(axis=1)
-    i = np.argmax(flags, axis=1)
-    out = np.full(grid.shape[0], np.nan)
-    at0 = anyf & (i == 0)
-    out[at0] = cur[at0]
-    rows = np.nonzero(anyf & (i > 0))[0]
+def _first_true_many(grid: np.ndarray, flag_sets: list[np.ndarray], test, cur: np.ndarray
+                     ) -> list[np.ndarray]:
+    """Per row and criterion: the first x where the criterion holds — the first grid point
+    flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
+    ``forecast_crossing``); ``cur`` where it holds at the first grid point, NaN where never.
+
+    One bisection loop for every criterion and row at once; each element takes the same steps
+    as alone. ``grid``: ``(m, g)`` x values; ``flag_sets``: per criterion, the grid flags
+    ``(m, g)``; ``test(x, rows, which)``: whether criterion ``which[j]`` holds for row
+    ``rows[j]`` at ``x[j]`` (all shape ``(r,)``). Returns one ``(m,)`` array per criterion."""
+    outs, A, B, R, C = [], [], [], [], []
+    for c, flags in enumerate(flag_sets):
+        anyf = flags.any(axis=1)
+        i = np.argmax(flags, axis=1)
+        out = np.full(grid.shape[0], np.nan)
+        at0 = anyf & (i == 0)
+        out[at0] = cur[at0]
+        rows = np.nonzero(anyf & (i > 0))[0]
+        outs.append(out)
+        A.append(grid[rows, i[rows] - 1])
+        B.append(grid[rows, i[rows]])
+        R.append(rows)
+        C.append(np.full(rows.size, c))
+    a, b, rows, which = (np.concatenate(v) for v in (A, B, R, C))
     if rows.size:
-        a = grid[rows, i[rows] - 1].copy()
-        b = grid[rows, i[rows]].copy()
         for _ in range(BISECTIONS):
             mid = 0.5 * (a + b)
-            hit = fn(mid, rows)
+            hit = test(mid, rows, which)
             b = np.where(hit, mid, b)
             a = np.where(hit, a, mid)
-        out[rows] = b
-    return out
+        for c, out in enumerate(outs):
+            m = which == c
+            out[rows[m]] = b[m]
+    return outs
 
 
 def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
@@ -364,27 +380,17 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
     NaN for "not within the horizon"."""
     P = (slope, se, xref, yref, rsd, n)
 
-    def sub(rows):
-        return [p[rows] for p in P]
-
-    def any_out(x, rows):
-        lo, _, hi = _band(x, *sub(rows))
-        return (hi > upper[rows]) | (lo < lower[rows])
-
-    def mid_out(x, rows):
-        _, c, _ = _band(x, *sub(rows))
-        return (c > upper[rows]) | (c < lower[rows])
-
-    def all_out(x, rows):
-        lo, _, hi = _band(x, *sub(rows))
-        return (lo > upper[rows]) | (hi < lower[rows])
+    def test(x, rows, which):  # 0: band edge out, 1: centre out, 2: whole band out
+        lo, c, hi = _band(x, *[p[rows] for p in P])
+        up, low = upper[rows], lower[rows]
+        return np.where(which == 0, (hi > up) | (lo < low),
+                        np.where(which == 1, (c > up) | (c < low), (lo > up) | (hi < low)))
 
     grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
     lo, c, hi = _band(grid, *[p[:, None] for p in P])
     up, low = upper[:, None], lower[:, None]
-    early = _first_true_vec(grid, (hi > up) | (lo < low), any_out, current)
-    likely = _first_true_vec(grid, (c > up) | (c < low), mid_out, current)
-    late = _first_true_vec(grid, (lo > up) | (hi < low), all_out, current)
+    early, likely, late = _first_true_many(
+        grid, [(hi > up) | (lo < low), (c > up) | (c < low), (lo > up) | (hi < low)], test, current)
     e = np.where(np.isfinite(early), early, current)
     blo, _, bhi = _band(e, *P)
     side_upper = (bhi - upper) >= (lower - blo)
@@ -1222,12 +1228,14 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
     allr = np.arange(gi.size)
     grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
     flags = failing(grid, allr)
-    def at(x, r):
-        return failing(x[:, None], r)[:, 0]
 
-    early = _first_true_vec(grid, flags.any(axis=2), lambda x, r: at(x, r).any(axis=1), cur)
-    likely = _first_true_vec(grid, flags[:, :, centre], lambda x, r: at(x, r)[:, centre], cur)
-    late = _first_true_vec(grid, flags.all(axis=2), lambda x, r: at(x, r).all(axis=1), cur)
+    def test(x, rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
+        f = failing(x[:, None], rows)[:, 0]
+        return np.where(which == 0, f.any(axis=1),
+                        np.where(which == 1, f[:, centre], f.all(axis=1)))
+
+    early, likely, late = _first_true_many(
+        grid, [flags.any(axis=2), flags[:, :, centre], flags.all(axis=2)], test, cur)
     return early, likely, late
 
 
