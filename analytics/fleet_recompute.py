@@ -1444,7 +1444,8 @@ def fleet_recompute(*, chunk_size: int = CHUNK_VEHICLES, fan_out: bool = False) 
         per_platform[p] = per_platform.get(p, 0) + 1
     for platform in Platform.objects.filter(pk__in=[p for p, n in per_platform.items() if n > 1]):
         platform_pool_fast(platform=platform)
-    for p, ids in todo:
+    # largest chunks first: the workers finish close together (longest-processing-time order)
+    for p, ids in sorted(todo, key=lambda c: -len(c[1])):
         whole = per_platform[p] == 1
         if fan_out:
             transaction.on_commit(lambda p=p, ids=ids, whole=whole: tasks.recompute_chunk.apply_async(
