@@ -171,3 +171,16 @@ def test_a_worker_s_platform_cache_is_rebuilt_when_a_spec_or_a_pooled_rate_chang
     assert second.specs[(spec.axle, spec.quantity)].tolerance_deg == spec.tolerance_deg
     PooledRate.objects.filter(platform_id=platform_id).update(mean=0.0)
     assert fr.platform_cache(platform_id) is not second
+
+
+def test_warming_builds_each_platform_s_cache_once_and_respects_its_budget():
+    from inspections.models import Platform
+
+    _fleet()
+    fr._CACHES.clear()
+    assert fr.warm_caches() == Platform.objects.count()
+    cache = fr.platform_cache(fr.chunks()[0][0])
+    assert cache._toe_sign  # the rear criteria are built
+    assert fr.platform_cache(fr.chunks()[0][0]) is cache  # and kept for the jobs
+    fr._CACHES.clear()
+    assert fr.warm_caches(budget_s=-1.0) == 0  # no time: nothing warmed, nothing fails
