@@ -44,8 +44,9 @@ def parse():
     p.add_argument("--samples", type=int, default=30, help="single-vehicle and page samples")
     p.add_argument("--reports", type=int, default=1000, help="owner PDFs in the batch")
     p.add_argument("--redis", default="redis://127.0.0.1:6379/9")
-    p.add_argument("--recompute-only", action="store_true",
-                   help="measure the full recompute alone (one line, no table)")
+    p.add_argument("--only", choices=["recompute", "single"],
+                   help="measure one row alone and print it as one line (no table); 'single' "
+                        "needs the results of an earlier recompute")
     return p.parse_args()
 
 
@@ -364,8 +365,13 @@ def main():
         built = time.perf_counter() - t0
     proc, log = start_worker(args)
     try:
+        if args.only == "single":
+            one = bench_single(args.samples)
+            print(f"one vehicle: p95 {one['p95'] * 1e3:.0f} ms (p50 {one['p50'] * 1e3:.0f} ms, "
+                  f"{one['n']} samples)")
+            return
         rc = bench_recompute(proc)
-        if args.recompute_only:
+        if args.only == "recompute":
             print(f"recompute {rc['total_s']:.1f} s, raw read {rc['raw_s']:.2f} s → "
                   f"{rc['total_s'] / rc['raw_s']:.1f}×; worker CPU {rc['cpu_s']:.1f} s; "
                   f"peak RSS {rc['rss']:.0f} MiB; load {rc['load']:.1f}")
