@@ -1536,9 +1536,13 @@ def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = No
                     at = np.sort(adj.loc[adj["vehicle_id"] == keys[gi] // 4, "t"].to_numpy())
                     flg = np.array([False] + [bool(np.any((at > t[i - 1]) & (at <= t[i])))
                                               for i in range(1, len(t))])
-                    fit = fit_drift(rows["odometer_km"].to_numpy(float),
-                                    rows[f"{angle}_deg"].to_numpy(float), adjusted_before=flg,
-                                    measurement_sd=REPEATABILITY[angle])
+                    try:
+                        fit = fit_drift(rows["odometer_km"].to_numpy(float),
+                                        rows[f"{angle}_deg"].to_numpy(float), adjusted_before=flg,
+                                        measurement_sd=REPEATABILITY[angle])
+                    except ValueError:  # refused (an odometer going backwards): left out
+                        n_used[j], rsd[j], sxx[j], slope[j], se[j] = 0.0, 0.0, 0.0, np.nan, np.nan
+                        continue
                     n_used[j], rsd[j], sxx[j] = fit.n_used, fit.residual_sd, fit.sxx
                     slope[j] = fit.fit.slope if fit.fit is not None else np.nan
                     se[j] = fit.fit.slope_se if fit.fit is not None else np.nan

@@ -212,9 +212,13 @@ def platform_pool(*, platform: Platform) -> int:
             adjusted = list(r.loc[r["kind"] == "as_adjusted", "measured_at"].unique())
             flags = analysis._adjusted_flags(rows, adjusted)
             for angle in analysis.ANGLES:
-                fits.setdefault((corner, angle), []).append(fit_drift(
-                    rows["odometer_km"].to_numpy(float), rows[f"{angle}_deg"].to_numpy(float),
-                    adjusted_before=flags, measurement_sd=analysis.REPEATABILITY[angle]))
+                try:
+                    fit = fit_drift(rows["odometer_km"].to_numpy(float),
+                                    rows[f"{angle}_deg"].to_numpy(float), adjusted_before=flags,
+                                    measurement_sd=analysis.REPEATABILITY[angle])
+                except ValueError:  # refused (an odometer going backwards): not pooled
+                    continue
+                fits.setdefault((corner, angle), []).append(fit)
     n = 0
     for (corner, angle), group in fits.items():
         shrunk = shrink_drift(group)

@@ -184,3 +184,35 @@ def test_warming_builds_each_platform_s_cache_once_and_respects_its_budget():
     assert fr.platform_cache(fr.chunks()[0][0]) is cache  # and kept for the jobs
     fr._CACHES.clear()
     assert fr.warm_caches(budget_s=-1.0) == 0  # no time: nothing warmed, nothing fails
+
+
+def test_a_vehicle_whose_odometer_goes_backwards_is_left_out_of_its_platform_s_pool():
+    from analytics.models import PooledRate
+    from inspections.models import AlignmentSession, Platform, WheelReading
+
+    _fleet()
+    platform_id, ids = max(fr.chunks(), key=lambda c: len(c[1]))
+    vehicle = Vehicle.objects.get(pk=ids[0])
+    last = vehicle.alignmentsession_set.order_by("-measured_at").first()
+    back = AlignmentSession.objects.create(  # a later visit with a lower reading: refused
+        vehicle=vehicle, workshop=vehicle.workshop, technician=last.technician,
+        measured_at=last.measured_at + dt.timedelta(days=20), odometer_km=last.odometer_km - 5000,
+        kind="as_found", equipment_id="RIG", equipment_calibrated_on=dt.date(2024, 1, 1))
+    for r in last.readings.all():
+        WheelReading.objects.create(session=back, corner=r.corner, toe_deg=r.toe_deg,
+                                    camber_deg=r.camber_deg, caster_deg=r.caster_deg)
+    platform = Platform.objects.get(pk=platform_id)
+    fields = ("corner", "angle", "mean", "mean_se", "tau2", "vehicles", "method")
+    PooledRate.objects.filter(platform=platform).delete()
+    services.platform_pool(platform=platform)  # the per-vehicle reference
+    reference = sorted(PooledRate.objects.filter(platform=platform).values_list(*fields))
+    PooledRate.objects.filter(platform=platform).delete()
+    AnalysisResult.objects.filter(vehicle_id__in=ids).delete()
+    st = fr.recompute_chunk(platform_id, ids, pool=True)  # pools, then analyses the others
+    pooled = sorted(PooledRate.objects.filter(platform=platform).values_list(*fields))
+    assert [r[:2] + (r[5], r[6]) for r in pooled] == [r[:2] + (r[5], r[6]) for r in reference]
+    for a, b in zip(pooled, reference, strict=True):
+        assert all(math.isclose(x, y, rel_tol=1e-9, abs_tol=1e-15)
+                   for x, y in zip(a[2:5], b[2:5], strict=True))
+    assert st.written == len(ids) - 1
+    assert not AnalysisResult.objects.filter(vehicle=vehicle).exists()
