@@ -336,7 +336,7 @@ def _wear(data: VehicleData, new, km_per_day, today, odo):
 def _toe_change_of_stiffness(data: VehicleData, corner_new, pos: str, link: str):
     """Vectorised k (N/mm, any shape) → cornering toe change (deg) of this outer rear wheel."""
     lp = _load_platform(data.vehicle.platform)
-    force = vehicle_load_cases(lp, outer_side=CORNER_SIDE[pos])[0].delta_force(pos)
+    force = _cases(lp, CORNER_SIDE[pos])[0].delta_force(pos)
 
     return LinkStiffnessToe(corner_new, force, link)
 

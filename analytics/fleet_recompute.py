@@ -28,6 +28,7 @@ Units: odometer km, angles deg, play mm, stiffness N/mm, slopes deg/km (payload 
 from __future__ import annotations
 
 import datetime as dt
+import functools
 import io
 import logging
 import math
@@ -167,7 +168,7 @@ class ChunkFrames:
 
 def read_frames(ids: list[int]) -> ChunkFrames:
     """One ``COPY`` per table of vehicles ``ids`` (see :class:`ChunkFrames`)."""
-    rd = read_frames_readings(ids)
+    rd = read_readings(ids)
     ck = _copy_frame(CHECKS_SQL, [ids], dtypes={"corner": str, "part": str, "findings": str,
                                                 "verdict": str, "defect_category": str})
     ev = _copy_frame(EVENTS_SQL, [ids], dtypes={"kind": str, "corner": str, "part": str,
@@ -177,7 +178,7 @@ def read_frames(ids: list[int]) -> ChunkFrames:
     return ChunkFrames(rd, ck, ev)
 
 
-def read_frames_readings(ids: list[int]) -> pd.DataFrame:
+def read_readings(ids: list[int]) -> pd.DataFrame:
     """The readings frame of :func:`read_frames` alone."""
     rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": str, "corner": str})
     rd["t"] = _ns(rd["measured_at"]) if len(rd) else np.empty(0, np.int64)
@@ -511,7 +512,6 @@ class PlatformCache:
         self._toe_fn: dict = {}
         self._toe_sign: dict = {}
         self._compliance: dict = {}
-        self.compliance_misses = 0
 
     def toe_fn(self, pos: str, link: str):
         key = (pos, link)
@@ -541,7 +541,6 @@ class PlatformCache:
         todo = [c for c in dict.fromkeys(conds_list) if (pos, c) not in self._compliance]
         if not todo:
             return
-        self.compliance_misses += len(todo)
         new = self.new[pos]
         cds = [{name: LinkCondition(*vals) for name, vals in conds} for conds in todo]
         measured = [measured_corner(new, cd) if cd else new for cd in cds]
@@ -554,20 +553,24 @@ class PlatformCache:
 _CACHES: dict[int, tuple[str, PlatformCache]] = {}
 
 
+@functools.cache
+def _fingerprint_sql() -> str:
+    from inspections.models import AlignmentSpec, ComponentLimit, PlatformCorner
+
+    related = ", ".join(
+        f"(SELECT string_agg(row_to_json(x)::text, ',' ORDER BY x.id) FROM {m._meta.db_table} x "
+        f"WHERE x.platform_id = %(p)s)"
+        for m in (AlignmentSpec, ComponentLimit, PlatformCorner, PooledRate))
+    return (f"SELECT md5(concat_ws('|', (SELECT row_to_json(x)::text FROM "
+            f"{Platform._meta.db_table} x WHERE x.id = %(p)s), {related}))")
+
+
 def _fingerprint(platform_id: int) -> str:
     """Everything the caches depend on — the platform's row and all rows of its specs, limits,
     corner files and pooled rates — as one digest computed by the database in one query (a
     long-lived worker notices an edited spec or a refreshed pooled rate)."""
-    from inspections.models import AlignmentSpec, ComponentLimit, PlatformCorner
-
-    rows = " ".join(
-        f"(SELECT string_agg(row_to_json(x)::text, ',' ORDER BY x.id) FROM {m._meta.db_table} x "
-        f"WHERE x.platform_id = %(p)s),"
-        for m in (AlignmentSpec, ComponentLimit, PlatformCorner, PooledRate))
-    sql = (f"SELECT md5(concat_ws('|', (SELECT row_to_json(x)::text FROM "
-           f"{Platform._meta.db_table} x WHERE x.id = %(p)s), {rows.rstrip(',')}))")
     with connection.cursor() as cur:
-        cur.execute(sql, {"p": platform_id})
+        cur.execute(_fingerprint_sql(), {"p": platform_id})
         return cur.fetchone()[0]
 
 
@@ -1315,17 +1318,23 @@ def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
             cp.write_row(row)
 
 
-_LZ4: list[bool] = []
+_lz4: bool | None = None  # whether the server has lz4, asked once per process
 
 
-def _stage_compression(cur) -> str:
-    """`` COMPRESSION lz4`` where the server has lz4 (see migration 0007: the staged payloads
-    move into the results table as they were compressed, so the stage compresses as it does)."""
-    if not _LZ4:
+def _copy_staged(cur, stage: str, columns_sql: str, columns: tuple[str, ...], rows) -> None:
+    """A temporary table ``stage`` (dropped at commit; one left by an enclosing transaction is
+    replaced) filled with ``COPY``. Its JSONB compresses with lz4 where the server has it (see
+    migration 0007): staged values move into the stored tables as they were compressed."""
+    global _lz4
+    if _lz4 is None:
         cur.execute("SELECT 1 FROM pg_settings WHERE name = 'default_toast_compression' "
                     "AND 'lz4' = ANY(enumvals)")
-        _LZ4.append(cur.fetchone() is not None)
-    return " COMPRESSION lz4" if _LZ4[0] else ""
+        _lz4 = cur.fetchone() is not None
+    if _lz4:
+        columns_sql = columns_sql.replace(" jsonb", " jsonb COMPRESSION lz4")
+    cur.execute(f"DROP TABLE IF EXISTS {stage}")
+    cur.execute(f"CREATE TEMP TABLE {stage} ({columns_sql}) ON COMMIT DROP")
+    _copy_rows(cur, stage, columns, rows)
 
 
 RESULT_INSERT_SQL = """INSERT INTO "analytics_analysisresult"
@@ -1339,11 +1348,8 @@ def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
     """:func:`analytics.models.outcomes_store` with ``COPY``: staged, then inserted where new."""
     if not outcomes:
         return
-    cur.execute("DROP TABLE IF EXISTS fleet_outcome_stage")
-    cur.execute(f"CREATE TEMP TABLE fleet_outcome_stage (key text, entry jsonb"
-                f"{_stage_compression(cur)}) ON COMMIT DROP")
-    _copy_rows(cur, "fleet_outcome_stage", ("key", "entry"),
-               ((k, _json(e)) for k, e in sorted(outcomes.items())))
+    _copy_staged(cur, "fleet_outcome_stage", "key text, entry jsonb", ("key", "entry"),
+                 ((k, _json(e)) for k, e in sorted(outcomes.items())))
     cur.execute('INSERT INTO "analytics_complianceoutcome" (key, entry, created_at) '
                 "SELECT key, entry, now() FROM fleet_outcome_stage ORDER BY key "
                 "ON CONFLICT (key) DO NOTHING")
@@ -1367,7 +1373,6 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     owners = [v for v in vids if vehicles[v].owner_id is not None]
     for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
         previous.setdefault(v, set()).add(k)
-    dumps = _json
     stored: dict[int, dict] = {}
     outcomes: dict[str, dict] = {}
     memo: dict[int, str] = {}  # the cached compliance entries are shared between payloads
@@ -1377,11 +1382,10 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     with transaction.atomic(), connection.cursor() as dj:
         cur = dj.cursor  # the psycopg cursor
         _store_outcomes(cur, outcomes)
-        cur.execute("DROP TABLE IF EXISTS fleet_result_stage")  # left by an enclosing transaction
-        cur.execute("CREATE TEMP TABLE fleet_result_stage (vehicle_id bigint, input_key text, "
-                    f"payload jsonb{_stage_compression(cur)}, flips boolean) ON COMMIT DROP")
-        _copy_rows(cur, "fleet_result_stage", ("vehicle_id", "input_key", "payload", "flips"),
-                   ((v, keys[v], dumps(stored[v]), payload_flips(results[v][0])) for v in vids))
+        _copy_staged(cur, "fleet_result_stage",
+                     "vehicle_id bigint, input_key text, payload jsonb, flips boolean",
+                     ("vehicle_id", "input_key", "payload", "flips"),
+                     ((v, keys[v], _json(stored[v]), payload_flips(results[v][0])) for v in vids))
         cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
         mine = {int(v): int(rid) for rid, v in cur.fetchall()}
         if not mine:
@@ -1396,7 +1400,7 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
              SEVERITIES.index(a["severity"]), a["what"][:300],
              dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
              int(a["due_km"]) if a["due_km"] is not None else None,
-             a["corner"] or "", a["defect_category"] or "", dumps(a))
+             a["corner"] or "", a["defect_category"] or "", _json(a))
             for v in mine_ids for a in results[v][0]["advice"]))
         cur.execute("DELETE FROM analytics_driftrate WHERE vehicle_id = ANY(%s)", [mine_ids])
         _copy_rows(cur, "analytics_driftrate", (
@@ -1507,7 +1511,7 @@ def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = No
         ids = list(platform.vehicles.values_list("pk", flat=True))
         if not ids:
             return 0
-        readings = read_frames_readings(ids)
+        readings = read_readings(ids)
     rd = readings
     if rd.empty:
         return 0

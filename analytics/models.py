@@ -87,9 +87,6 @@ def compact_payload(payload: dict, memo: dict | None = None) -> tuple[dict, dict
     outcomes: dict[str, dict] = {}
     stored: dict[str, dict] = {}
     for pos, entry in comp.items():
-        if "outcome" in entry:  # already stored by reference
-            stored[pos] = entry
-            continue
         if memo is None:
             k = outcome_key(entry)
         else:

@@ -112,10 +112,9 @@ def _stiffness_diag(corner: Corner) -> np.ndarray:
 
 @dataclass(frozen=True)
 class _Geometry:
-    """What depends only on a corner's link lines: G (6, 6), G⁻¹ (6, 6) and the play
-    sensitivities ∂toe/∂lᵢ, ∂camber/∂lᵢ (deg/mm, each (5,))."""
+    """What depends only on a corner's link lines: G⁻¹ (6, 6), the play sensitivities
+    ∂toe/∂lᵢ, ∂camber/∂lᵢ (deg/mm, each (5,)), the design toe and camber (deg) and spin axis."""
 
-    g: np.ndarray
     g_inv: np.ndarray
     toe_per_mm: np.ndarray
     camber_per_mm: np.ndarray
@@ -125,8 +124,7 @@ class _Geometry:
 
 
 @functools.lru_cache(maxsize=256)
-def _geometry_of(key: bytes, chassis: bytes, carrier: bytes, centre: bytes, spin: bytes
-                 ) -> _Geometry:
+def _geometry_of(chassis: bytes, carrier: bytes, centre: bytes, spin: bytes) -> _Geometry:
     def arr(b: bytes, shape):
         return np.frombuffer(b, dtype=float).reshape(shape)
 
@@ -136,11 +134,9 @@ def _geometry_of(key: bytes, chassis: bytes, carrier: bytes, centre: bytes, spin
     u = g_inv.T[:, :5]  # (6, 5)
     ds = np.cross(u[3:].T, arr(spin, (3,)))  # (5, 3)
     gt, gc = toe_camber_gradient(arr(spin, (3,)))
-    for a in (g, g_inv):
-        a.setflags(write=False)
+    g_inv.setflags(write=False)
     toe0, camber0 = toe_camber_deg(arr(spin, (3,)))
-    return _Geometry(g, g_inv, ds @ gt, ds @ gc, float(toe0), float(camber0),
-                     arr(spin, (3,)))
+    return _Geometry(g_inv, ds @ gt, ds @ gc, float(toe0), float(camber0), arr(spin, (3,)))
 
 
 def _geometry(corner: Corner) -> _Geometry:
@@ -150,7 +146,7 @@ def _geometry(corner: Corner) -> _Geometry:
              np.ascontiguousarray(corner.carrier, dtype=float).tobytes(),
              np.ascontiguousarray(corner.wheel_centre, dtype=float).tobytes(),
              np.ascontiguousarray(corner.spin_axis, dtype=float).tobytes())
-    return _geometry_of(b"".join(parts), *parts)
+    return _geometry_of(*parts)
 
 
 def compliance_matrix(corner: Corner) -> np.ndarray:
@@ -275,14 +271,14 @@ class LinkStiffnessToe:
             raise ValueError("force_N must be finite")
         i = corner.link_index(link)
         wrench = np.concatenate([f, np.cross(corner.contact_patch - corner.wheel_centre, f)])
-        g = line_matrix(corner.chassis, corner.carrier, corner.wheel_centre)
-        members = np.linalg.solve(g, wrench)  # (6,)
+        geo = _geometry(corner)
+        members = geo.g_inv @ wrench  # (6,): G⁻¹ W
         delta0 = members * _stiffness_diag(corner)  # (6,) deflections with the corner's own k
-        self._rot0 = np.linalg.solve(g.T, delta0)[3:]  # (3,) rad
-        self._rot_per = np.linalg.solve(g.T, np.eye(6)[i])[3:]  # (3,) rad per mm of link i
+        self._rot0 = (delta0 @ geo.g_inv)[3:]  # (3,) rad: G⁻ᵀ δ0
+        self._rot_per = geo.g_inv[i, 3:]  # (3,) rad per mm of link i: G⁻ᵀ eᵢ
         self._force_i, self._delta0_i = float(members[i]), float(delta0[i])
-        self._spin = corner.spin_axis
-        self._toe0 = float(toe_camber_deg(corner.spin_axis)[0])
+        self._spin = geo.spin
+        self._toe0 = geo.toe0_deg
 
     def __call__(self, stiffness_N_per_mm: ArrayLike) -> np.ndarray:
         k = np.asarray(stiffness_N_per_mm, dtype=float)

@@ -205,17 +205,24 @@ def corner_from_dict(raw: Any) -> Corner:
             raise CornerFileError(
                 f"{where}.carrier",
                 f"coincident with chassis point (length below {MIN_LINK_LENGTH_MM:g} mm)")
-        stiffness[i] = _number(link["stiffness_N_per_mm"], f"{where}.stiffness_N_per_mm")
-        if stiffness[i] <= 0:
-            raise CornerFileError(f"{where}.stiffness_N_per_mm", "must be positive")
-        play[i] = _number(link["play_mm"], f"{where}.play_mm")
-        if play[i] < 0:
-            raise CornerFileError(f"{where}.play_mm", "must not be negative")
+        stiffness[i], play[i] = _link_values(i, link["stiffness_N_per_mm"], link["play_mm"])
     _check_arrangement(chassis, carrier, centre)
     return Corner(
         name=name, side=side, wheel_centre=_frozen(centre), spin_axis=_frozen(spin),
         contact_patch=_frozen(patch), link_names=tuple(names), chassis=_frozen(chassis),
         carrier=_frozen(carrier), stiffness=_frozen(stiffness), play=_frozen(play))
+
+
+def _link_values(i: int, stiffness: Any, play: Any) -> tuple[float, float]:
+    """Link ``i``'s stiffness (N/mm, positive) and play (mm, not negative), checked."""
+    where = f"links[{i}]"
+    k = _number(stiffness, f"{where}.stiffness_N_per_mm")
+    if k <= 0:
+        raise CornerFileError(f"{where}.stiffness_N_per_mm", "must be positive")
+    p = _number(play, f"{where}.play_mm")
+    if p < 0:
+        raise CornerFileError(f"{where}.play_mm", "must not be negative")
+    return k, p
 
 
 def _check_arrangement(chassis: np.ndarray, carrier: np.ndarray, centre: np.ndarray) -> None:
@@ -333,12 +340,6 @@ def with_links(corner: Corner, *, stiffness: Mapping[str, float] | ArrayLike | N
     p = np.array(corner.play, dtype=float) if play is None else \
         _per_link(corner, play, np.asarray(corner.play), "play")
     for i in range(N_LINKS):
-        where = f"links[{i}]"
-        k[i] = _number(float(k[i]), f"{where}.stiffness_N_per_mm")
-        if k[i] <= 0:
-            raise CornerFileError(f"{where}.stiffness_N_per_mm", "must be positive")
-        p[i] = _number(float(p[i]), f"{where}.play_mm")
-        if p[i] < 0:
-            raise CornerFileError(f"{where}.play_mm", "must not be negative")
+        k[i], p[i] = _link_values(i, float(k[i]), float(p[i]))
     return replace(corner, name=corner.name if name is None else name, stiffness=_frozen(k),
                    play=_frozen(p))
