@@ -225,15 +225,21 @@ class DriftRate(models.Model):
                                                name="one_drift_rate_per_vehicle_angle")]
 
 
+def drift_rate_values(payload: dict) -> list[tuple[str, str, float]]:
+    """``(corner, angle, slope deg per 10,000 km)`` of each drift series of a payload that has a
+    rate of its own."""
+    out = []
+    for key, entry in (payload.get("drift") or {}).items():
+        slope = entry.get("slope_deg_per_10k")
+        if slope is not None:
+            corner, angle = key.split(".", 1)
+            out.append((corner, angle, float(slope)))
+    return out
+
+
 def drift_rate_rows(*, result_id: int, vehicle_id: int, platform_id: int,
                     payload: dict) -> list[DriftRate]:
     """The DriftRate rows of one result's payload (only series with a rate of their own)."""
-    rows = []
-    for key, entry in (payload.get("drift") or {}).items():
-        slope = entry.get("slope_deg_per_10k")
-        if slope is None:
-            continue
-        corner, angle = key.split(".", 1)
-        rows.append(DriftRate(vehicle_id=vehicle_id, result_id=result_id, platform_id=platform_id,
-                              corner=corner, angle=angle, slope_deg_per_10k=float(slope)))
-    return rows
+    return [DriftRate(vehicle_id=vehicle_id, result_id=result_id, platform_id=platform_id,
+                      corner=corner, angle=angle, slope_deg_per_10k=slope)
+            for corner, angle, slope in drift_rate_values(payload)]

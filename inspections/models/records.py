@@ -99,7 +99,9 @@ class AlignmentSession(AppendOnlyRecord):
             models.CheckConstraint(name="session_correction_has_reason", condition=(
                 Q(supersedes__isnull=True) | ~Q(correction_reason=""))),
         ]
-        indexes = [models.Index(fields=["vehicle", "measured_at"])]
+        indexes = [models.Index(fields=["vehicle", "measured_at"]),
+                   # a vehicle's newest record id (the analysis input key) as one index probe
+                   models.Index(fields=["vehicle", "id"], name="session_vehicle_newest")]
         ordering = ["measured_at", "id"]
 
     def __str__(self) -> str:
@@ -165,7 +167,9 @@ class ComponentCheck(AppendOnlyRecord):
             models.CheckConstraint(name="check_correction_has_reason", condition=(
                 Q(supersedes__isnull=True) | ~Q(correction_reason=""))),
         ]
-        indexes = [models.Index(fields=["vehicle", "checked_at"])]
+        indexes = [models.Index(fields=["vehicle", "checked_at"]),
+                   # a vehicle's newest record id (the analysis input key) as one index probe
+                   models.Index(fields=["vehicle", "id"], name="check_vehicle_newest")]
         ordering = ["checked_at", "id"]
 
 
@@ -200,5 +204,7 @@ class ServiceEvent(models.Model):
             models.CheckConstraint(name="replacement_names_part", condition=~Q(
                 kind="part_replaced") | (~Q(part="") & ~Q(corner="") & ~Q(reason=""))),
         ]
-        indexes = [models.Index(fields=["vehicle", "performed_at"])]
+        indexes = [models.Index(fields=["vehicle", "performed_at"]),
+                   # a vehicle's newest record id (the analysis input key) as one index probe
+                   models.Index(fields=["vehicle", "id"], name="event_vehicle_newest")]
         ordering = ["performed_at", "id"]

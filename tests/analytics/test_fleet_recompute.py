@@ -88,6 +88,42 @@ def test_a_rerun_writes_each_result_and_its_advice_once():
     assert fr.recompute_chunk(platform_id, ids).written == 0
 
 
+def test_a_chunk_pauses_the_cyclic_collector_only_while_it_runs_and_frees_its_cycles():
+    import gc
+    import weakref
+
+    large_fleet.build(vehicles=6, seed=4)
+    platform_id, ids = fr.chunks()[0]
+    seen = []
+
+    class Node:  # a reference cycle left behind by the chunk
+        pass
+
+    real = fr._recompute_chunk
+
+    def spy(*args, **kwargs):
+        seen.append(gc.isenabled())
+        a, b = Node(), Node()
+        a.other, b.other = b, a
+        seen.append(weakref.ref(a))
+        return real(*args, **kwargs)
+
+    fr._recompute_chunk = spy
+    try:
+        assert gc.isenabled()
+        assert fr.recompute_chunk(platform_id, ids).written == len(ids)
+        assert seen[0] is False and gc.isenabled()
+        assert seen[1]() is None  # collected when the chunk ended
+        gc.disable()  # a caller that runs without the collector keeps it off
+        try:
+            fr.recompute_chunk(platform_id, ids)
+            assert not gc.isenabled()
+        finally:
+            gc.enable()
+    finally:
+        fr._recompute_chunk = real
+
+
 def test_the_chunks_cover_every_vehicle_exactly_once_within_one_platform():
     large_fleet.build(vehicles=30, seed=9)
     chunks = fr.chunks(size=4)
