@@ -33,7 +33,10 @@ class AnalysisRequest(models.Model):
 
 
 class AnalysisResult(models.Model):
-    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="analysis_results")
+    # db_index=False here and below: a composite index led by the same column serves the lookups
+    # (one index fewer to maintain on every bulk write of the recompute)
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="analysis_results",
+                                db_index=False)
     input_key = models.CharField(max_length=120)
     model_version = models.CharField(max_length=40)
     computed_at = models.DateTimeField(auto_now_add=True)
@@ -131,7 +134,8 @@ class AdviceItem(models.Model):
     """One recommendation of a result, flattened for dashboards (due ordering, filtering)."""
 
     result = models.ForeignKey(AnalysisResult, on_delete=models.CASCADE, related_name="advice")
-    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="advice")
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="advice",
+                                db_index=False)
     key = models.CharField(max_length=120, help_text="Stable id of the advice across recomputes.")
     kind = models.CharField(max_length=40)
     severity = models.CharField(max_length=20)
@@ -211,10 +215,11 @@ class DriftRate(models.Model):
     vehicle's advice whenever a new result is stored.
     """
 
-    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="drift_rates")
+    vehicle = models.ForeignKey(Vehicle, on_delete=models.CASCADE, related_name="drift_rates",
+                                db_index=False)
     result = models.ForeignKey(AnalysisResult, on_delete=models.CASCADE, related_name="drift_rates")
     platform = models.ForeignKey("inspections.Platform", on_delete=models.CASCADE,
-                                 related_name="drift_rates")
+                                 related_name="drift_rates", db_index=False)
     corner = models.CharField(max_length=2)
     angle = models.CharField(max_length=10)
     slope_deg_per_10k = models.FloatField(help_text="deg per 10,000 km")
