@@ -1432,9 +1432,9 @@ def recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool = Fa
 def _cyclic_gc_paused():
     """Python's cyclic garbage collector off for the duration (reference counting still frees
     almost everything): a chunk allocates some hundred thousand short-lived containers, and the
-    collections they trigger each walk every object the process holds (≈ 5 % of a chunk's CPU,
-    measured). Whatever cycles the chunk left are collected when it ends (they are all in the
-    youngest generation, so that collection walks only the chunk's survivors)."""
+    collections they trigger each walk every object the process holds (≈ 10–15 % of a chunk's
+    worker CPU, measured). Whatever cycles the chunk left are collected when it ends (they are
+    all in the youngest generation, so that collection walks only the chunk's survivors)."""
     if not gc.isenabled():
         yield
         return
