@@ -124,6 +124,21 @@ def test_a_chunk_pauses_the_cyclic_collector_only_while_it_runs_and_frees_its_cy
         fr._recompute_chunk = real
 
 
+@pytest.mark.django_db(transaction=True)  # the read's own transaction, not a test's savepoint
+def test_chunk_reads_are_planned_with_their_own_settings_for_their_own_transaction_only():
+    sql = ("SELECT current_setting('max_parallel_workers_per_gather') AS par, "
+           "current_setting('random_page_cost') AS rpc")
+    with connection.cursor() as cur:
+        cur.execute(sql)
+        before = cur.fetchone()
+    got = fr._copy_frame(sql, [], dtypes={"par": str, "rpc": str})
+    assert got.iloc[0].tolist() == [v for _, v in fr.READ_SETTINGS]
+    with connection.cursor() as cur:  # nothing left behind for the connection's next queries
+        cur.execute(sql)
+        assert cur.fetchone() == before
+    assert before != tuple(v for _, v in fr.READ_SETTINGS)
+
+
 def test_the_chunks_cover_every_vehicle_exactly_once_within_one_platform():
     large_fleet.build(vehicles=30, seed=9)
     chunks = fr.chunks(size=4)
