@@ -354,20 +354,103 @@ def _band(x, slope, se, xref, yref, rsd, n):
     return centre - half, centre, centre + half
 
 
-def _first_true_many(grid: np.ndarray, flag_sets: list[np.ndarray], test, cur: np.ndarray
-                     ) -> list[np.ndarray]:
+#: Grid columns per block of the bounded first-crossing search (:func:`_first_flags`).
+FLAG_BLOCK = 32
+
+
+def _block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
+    """Bounds of a band's centre and half-width over blocks of :data:`FLAG_BLOCK` grid columns:
+    ``(starts, ends, c_min, c_max, h_min, h_max, unbounded)``, the bounds ``(m, blocks)``.
+
+    Computed with the very operations of :func:`_band` at each block's end points: every one is
+    correctly rounded and monotonic in its argument (x − x_ref, a product with a fixed factor, a
+    sum, a square root), so the computed centre at the grid points is monotonic in x, the
+    computed half-width is monotonic on each side of x_ref (least at x_ref), and the bounds hold
+    for every grid point of the block, exactly. ``unbounded``: rows whose grid does not rise
+    (their bounds are not used)."""
+    m, g = grid.shape
+    starts = np.arange(0, g, FLAG_BLOCK)
+    ends = np.minimum(starts + FLAG_BLOCK, g) - 1
+    d0 = grid[:, starts] - xref[:, None]
+    d1 = grid[:, ends] - xref[:, None]
+    c0 = yref[:, None] + slope[:, None] * d0
+    c1 = yref[:, None] + slope[:, None] * d1
+    a = (rsd**2 * (1.0 + 1.0 / n))[:, None]
+    b = (se**2)[:, None]
+    h0 = Z95 * np.sqrt(a + b * d0**2)
+    h1 = Z95 * np.sqrt(a + b * d1**2)
+    h_at_ref = Z95 * np.sqrt(a + b * 0.0**2)
+    h_min = np.where((d0 <= 0.0) & (d1 >= 0.0), h_at_ref, np.minimum(h0, h1))
+    unbounded = ~np.all(grid[:, 1:] >= grid[:, :-1], axis=1)
+    return (starts, ends, np.minimum(c0, c1), np.maximum(c0, c1), h_min, np.maximum(h0, h1),
+            unbounded)
+
+
+def _scan_blocks(starts, ends, possible: list[np.ndarray], evaluate
+                 ) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Each criterion's ``(any flagged, first flagged index)`` per row, evaluating only blocks
+    where ``possible[c][row, block]``, in grid order, until each row's first flag is found.
+    ``evaluate(rows, j0, j1)``: the exact flags of columns ``j0:j1`` of those rows, one
+    ``(r, j1 − j0)`` array per criterion."""
+    m = possible[0].shape[0]
+    found = [np.zeros(m, dtype=bool) for _ in possible]
+    first = [np.zeros(m, dtype=np.int64) for _ in possible]
+    for k, (j0, j1) in enumerate(zip(starts, ends + 1, strict=True)):
+        need = np.zeros(m, dtype=bool)
+        for c, p in enumerate(possible):
+            need |= ~found[c] & p[:, k]
+        rows = np.nonzero(need)[0]
+        if not rows.size:
+            continue
+        for c, flags in enumerate(evaluate(rows, j0, j1)):
+            hit = flags.any(axis=1) & ~found[c][rows]
+            r = rows[hit]
+            first[c][r] = j0 + np.argmax(flags[hit], axis=1)
+            found[c][r] = True
+    return list(zip(found, first, strict=True))
+
+
+def _first_flags(grid: np.ndarray, P: tuple, lower: np.ndarray, upper: np.ndarray
+                 ) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Per criterion (band edge out, centre out, whole band out): whether any grid point of a row
+    is flagged and the first one that is — what ``flags.any(axis=1)`` and ``np.argmax(flags,
+    axis=1)`` give on the full ``(m, g)`` grid of :func:`_band`, without evaluating every point.
+
+    A block whose bounds (:func:`_block_bounds`) rule a criterion out has no flagged point for
+    it, exactly; the others are evaluated point by point (:func:`_scan_blocks`). The result is
+    the full grid's, element for element (tested against it on random and edge-case series).
+    ``P``: the six ``(m,)`` band parameters of :func:`_band`; ``lower``/``upper``: ``(m,)``
+    limits (±inf for none).
+    """
+    starts, ends, c_min, c_max, h_min, h_max, unbounded = _block_bounds(grid, *P)
+    up, low = upper[:, None], lower[:, None]
+    possible = [(c_max + h_max > up) | (c_min - h_max < low),   # some band edge out
+                (c_max > up) | (c_min < low),                   # the centre out
+                (c_max - h_min > up) | (c_min + h_min < low)]   # the whole band out
+    for flags in possible:
+        flags[unbounded] = True
+
+    def evaluate(rows, j0, j1):
+        lo, ce, hi = _band(grid[rows, j0:j1], *[p[rows, None] for p in P])
+        u, w = upper[rows, None], lower[rows, None]
+        return (hi > u) | (lo < w), (ce > u) | (ce < w), (lo > u) | (hi < w)
+
+    return _scan_blocks(starts, ends, possible, evaluate)
+
+
+def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]], test,
+                  cur: np.ndarray) -> list[np.ndarray]:
     """Per row and criterion: the first x where the criterion holds — the first grid point
     flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
     ``forecast_crossing``); ``cur`` where it holds at the first grid point, NaN where never.
 
     One bisection loop for every criterion and row at once; each element takes the same steps
-    as alone. ``grid``: ``(m, g)`` x values; ``flag_sets``: per criterion, the grid flags
-    ``(m, g)``; ``test(x, rows, which)``: whether criterion ``which[j]`` holds for row
-    ``rows[j]`` at ``x[j]`` (all shape ``(r,)``). Returns one ``(m,)`` array per criterion."""
+    as alone. ``grid``: ``(m, g)`` x values; ``firsts``: per criterion, ``(any flagged, first
+    flagged index)``, each ``(m,)`` (:func:`_first_flags`, :func:`_scan_blocks`);
+    ``test(x, rows, which)``: whether criterion ``which[j]`` holds for row ``rows[j]`` at
+    ``x[j]`` (all shape ``(r,)``). Returns one ``(m,)`` array per criterion."""
     outs, A, B, R, C = [], [], [], [], []
-    for c, flags in enumerate(flag_sets):
-        anyf = flags.any(axis=1)
-        i = np.argmax(flags, axis=1)
+    for c, (anyf, i) in enumerate(firsts):
         out = np.full(grid.shape[0], np.nan)
         at0 = anyf & (i == 0)
         out[at0] = cur[at0]
@@ -403,10 +486,7 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
                         np.where(which == 1, (c > up) | (c < low), (lo > up) | (hi < low)))
 
     grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
-    lo, c, hi = _band(grid, *[p[:, None] for p in P])
-    up, low = upper[:, None], lower[:, None]
-    early, likely, late = _first_true_many(
-        grid, [(hi > up) | (lo < low), (c > up) | (c < low), (lo > up) | (hi < low)], test, current)
+    early, likely, late = _bisect_first(grid, _first_flags(grid, P, lower, upper), test, current)
     e = np.where(np.isfinite(early), early, current)
     blo, _, bhi = _band(e, *P)
     side_upper = (bhi - upper) >= (lower - blo)
@@ -491,6 +571,23 @@ class SignByStiffness:
                 j = int(np.nonzero(neg[1:] != neg[:-1])[0][0])
                 self.root = float(brentq(lambda k: float(function(np.array([k]))[0]),
                                          kk[j], kk[j + 1], xtol=1e-12, rtol=1e-14))
+
+    #: Relative margin by which :meth:`never_below_zero` keeps away from the range's ends and
+    #: the zero: far above the rounding of ``np.exp`` and of the bounds (a few 1e-16) and above
+    #: ``ROOT_GUARD``.
+    SAFE = 1e-6
+
+    def never_below_zero(self, k_min: np.ndarray, k_max: np.ndarray) -> np.ndarray:
+        """Whether no stiffness in ``[k_min, k_max]`` (N/mm, arrays of one shape) can be below
+        zero: the interval lies inside the checked monotonic range, on the side of the zero (or
+        in a range without one) where the function is not below zero, by :data:`SAFE`."""
+        k_min, k_max = np.asarray(k_min, dtype=float), np.asarray(k_max, dtype=float)
+        inside = (k_min >= self.k_mono * (1.0 + self.SAFE)) & (k_max <= self.K_HIGH * (1.0 - self.SAFE))
+        if self.root is None:
+            return inside & (not self.constant_sign)
+        if self.negative_above:  # below zero above the root
+            return inside & (k_max <= self.root * (1.0 - self.SAFE))
+        return inside & (k_min >= self.root * (1.0 + self.SAFE))
 
     def __call__(self, k: np.ndarray) -> np.ndarray:
         k = np.asarray(k, dtype=float)
@@ -1276,17 +1373,26 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
         stiff = np.exp(mid[..., None] + u * half[..., None])
         return below_zero(stiff)
 
-    allr = np.arange(gi.size)
     grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
-    flags = failing(grid, allr)
+    # a block can fail only where some sample's stiffness can be below zero: the samples lie
+    # within exp(centre ± half-width), bounded per block (see _block_bounds)
+    starts, ends, c_min, c_max, _h_min, h_max, unbounded = _block_bounds(
+        grid, slope, se, xref, yref, rsd, n)
+    with np.errstate(over="ignore"):
+        can_fail = ~below_zero.never_below_zero(np.exp(c_min - h_max), np.exp(c_max + h_max))
+    can_fail[unbounded] = True
+
+    def evaluate(rows, j0, j1):
+        f = failing(grid[rows, j0:j1], rows)
+        return f.any(axis=2), f[:, :, centre], f.all(axis=2)
 
     def test(x, rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
         f = failing(x[:, None], rows)[:, 0]
         return np.where(which == 0, f.any(axis=1),
                         np.where(which == 1, f[:, centre], f.all(axis=1)))
 
-    early, likely, late = _first_true_many(
-        grid, [flags.any(axis=2), flags[:, :, centre], flags.all(axis=2)], test, cur)
+    firsts = _scan_blocks(starts, ends, [can_fail] * 3, evaluate)
+    early, likely, late = _bisect_first(grid, firsts, test, cur)
     return early, likely, late
 
 
