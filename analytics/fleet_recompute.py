@@ -494,7 +494,7 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
 
 
 def _opt(v: float) -> float | None:
-    return None if not np.isfinite(v) else float(v)
+    return float(v) if math.isfinite(v) else None  # numpy's float64 is a float: no array call
 
 
 def _forecast(early, likely, late, side, *, current_km, current_date, km_per_day, horizon_end,
@@ -513,7 +513,8 @@ def _forecast(early, likely, late, side, *, current_km, current_date, km_per_day
             "no usable daily-distance rate: dates come only from a fit over time",)
     if side_word is None:
         side_word = None if e is None else ("upper" if side else "lower")
-    dates = [_km_to_date(v, current_km, current_date, km_per_day) for v in (e, li, la)]
+    dates = [_km_to_date(v, current_km, current_date, km_per_day) for v in (e, li, la)] \
+        if km_per_day is not None and km_per_day > 0 else [None, None, None]
     if time_dates is not None:
         dates = [b if a is None else a if b is None else min(a, b)
                  for a, b in zip(dates, time_dates, strict=True)]
@@ -848,17 +849,16 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     ids = sorted(set(vehicle_ids) if only is None else set(vehicle_ids) & only)
     if not ids:
         return {}
-    vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=ids, platform_id=platform_id)
-                .select_related("workshop")}
+    # vehicle id → (label for the advice, workshop time zone)
+    vehicles = {pk: (f"{plate} ({vin})", tz) for pk, plate, vin, tz in Vehicle.objects.filter(
+        pk__in=ids, platform_id=platform_id).values_list("pk", "plate", "vin", "workshop__time_zone")}
     ids = [i for i in ids if i in vehicles]
-    for v in vehicles.values():
-        v.platform = platform
     got = read_frames(ids) if frames is None else frames.of(ids)
     rd, ck, ev = got.readings, got.checks, got.events
     T["read"] = T.get("read", 0) + time.perf_counter() - t0
     t1 = time.perf_counter()
 
-    tz_of = {vid: vehicles[vid].workshop.time_zone for vid in ids}
+    tz_of = {vid: vehicles[vid][1] for vid in ids}
     now = timezone.now()
     today_of = {vid: timezone.localtime(now, ZoneInfo(tz)).date() for vid, tz in tz_of.items()}
     for frame in (rd, ck, ev):
@@ -1016,7 +1016,6 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     for vid in ids:
         if vid in bad:
             continue
-        v = vehicles[vid]
         today = today_of[vid]
         if vid in comp:
             c_out, c_verdicts, c_used = comp[vid]
@@ -1027,7 +1026,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
             c_verdicts = [x for e in empty.values() for x in e[1]]
             c_used = {pos: e[2] for pos, e in empty.items()}
         state = adv.VehicleState(
-            vehicle=f"{v.plate} ({v.vin})", today=today, odometer_km=odo.get(vid, 0.0),
+            vehicle=vehicles[vid][0], today=today, odometer_km=odo.get(vid, 0.0),
             km_per_day=kmpd.get(vid), last_alignment=last_s.get(vid),
             last_suspension_inspection=last_c.get(vid),
             alignment_interval=a_int, suspension_interval=s_int,
