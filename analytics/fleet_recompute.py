@@ -1221,7 +1221,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
                      + rep["part"].map(part_ix).to_numpy())
     size = ck.groupby("gk")["gk"].transform("size")
     ck = ck[size >= 2]
-    kinds = ck["part"].map(lambda c: PARTS_BY_CODE[c].kind)
+    kinds = ck["part"].map({c: p.kind for c, p in PARTS_BY_CODE.items()})
     play_n = ck["play_mm"].notna().groupby(ck["gk"]).transform("sum")
     defl_n = ck["deflection_mm"].notna().groupby(ck["gk"]).transform("sum")
     pending = {}  # gk → (vid, corner, part_code, entry, kind)
@@ -1252,8 +1252,8 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
         pending[gk] = (int(cols["vehicle_id"][i0]), cols["corner"][i0], code, entry, "stiffness")
 
     # -- play forecasts, stacked
-    play_rows = bj[bj["gk"].map(lambda k: (lim := cache.limits.get(pending[k][2])) is not None
-                                and bool(lim.max_play_mm))] if len(bj) else bj
+    with_limit = {code for code, lim in cache.limits.items() if lim is not None and lim.max_play_mm}
+    play_rows = bj[bj["part"].isin(with_limit)] if len(bj) else bj
     play_fc = {}
     if len(play_rows):
         keys, X, Y = _segment_stack(play_rows, rep, play_rows["play_mm"].to_numpy(float))
@@ -1310,7 +1310,8 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
         return (corner.startswith("R") and corner in cache.new
                 and PARTS_BY_CODE[code].links[0] in cache.new[corner].link_names)
 
-    crit = bu[bu["gk"].map(criterion_applies)] if len(bu) else bu
+    applies = {k: criterion_applies(k) for k in pd.unique(bu["gk"])} if len(bu) else {}
+    crit = bu[bu["gk"].map(applies).to_numpy(dtype=bool)] if len(bu) else bu
     if len(crit):
         keys, X, Y = _segment_stack(crit, rep, np.log(crit["k"].to_numpy(float)))
         f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["stiffness_relative_sd"]))
