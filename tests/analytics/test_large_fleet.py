@@ -1,6 +1,7 @@
 """The large invented fleet is written with COPY under the database constraints, and the bulk
 load of wheel readings validates a whole file, naming each bad row, and stores all or nothing."""
 import io
+import time
 
 import pytest
 from django.db import IntegrityError, connection, transaction
@@ -38,6 +39,27 @@ def test_the_generator_writes_the_counted_rows_labelled_demo():
     assert not WheelReading.objects.filter(corner__in=["RL", "RR"], caster_deg__isnull=False).exists()
     assert AlignmentSession.objects.filter(notes="demo data", odometer_change_reason="").count() == \
         counts["sessions"]
+
+
+@pytest.mark.django_db(transaction=True)  # VACUUM runs outside any transaction
+def test_the_command_vacuums_the_tables_it_wrote_in_bulk():
+    from django.core.management import call_command
+
+    def vacuumed():
+        with connection.cursor() as cur:
+            cur.execute("SELECT pg_stat_clear_snapshot()")
+            cur.execute("SELECT vacuum_count FROM pg_stat_user_tables "
+                        "WHERE relname = 'inspections_wheelreading'")
+            return cur.fetchone()[0]
+
+    before = vacuumed()
+    out = io.StringIO()
+    call_command("build_large_fleet", vehicles=3, seed=2, stdout=out)
+    assert "vacuumed" in out.getvalue()
+    deadline = time.monotonic() + 5  # statistics reach the view asynchronously
+    while vacuumed() == before and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert vacuumed() > before
 
 
 def test_a_row_copied_outside_the_physical_range_is_refused_by_the_database():
