@@ -348,9 +348,15 @@ def _step_screen(X: np.ndarray, Y: np.ndarray, slope0: np.ndarray, msd: np.ndarr
 # --------------------------------------------------------------------------- crossings
 
 
+def _centre_half(x, slope, se, xref, yref, rsd, n):
+    """A trend's centre line and prediction half-width at ``x`` (as the core's ``LineTrend.band``);
+    the one place their operations are written (:func:`_block_bounds` relies on them)."""
+    d = x - xref
+    return yref + slope * d, Z95 * np.sqrt(rsd**2 * (1.0 + 1.0 / n) + se**2 * d**2)
+
+
 def _band(x, slope, se, xref, yref, rsd, n):
-    centre = yref + slope * (x - xref)
-    half = Z95 * np.sqrt(rsd**2 * (1.0 + 1.0 / n) + se**2 * (x - xref) ** 2)
+    centre, half = _centre_half(x, slope, se, xref, yref, rsd, n)
     return centre - half, centre, centre + half
 
 
@@ -362,7 +368,7 @@ def _block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
     """Bounds of a band's centre and half-width over blocks of :data:`FLAG_BLOCK` grid columns:
     ``(starts, ends, c_min, c_max, h_min, h_max, unbounded)``, the bounds ``(m, blocks)``.
 
-    Computed with the very operations of :func:`_band` at each block's end points: every one is
+    Computed with :func:`_centre_half` itself at each block's end points: every operation is
     correctly rounded and monotonic in its argument (x − x_ref, a product with a fixed factor, a
     sum, a square root), so the computed centre at the grid points is monotonic in x, the
     computed half-width is monotonic on each side of x_ref (least at x_ref), and the bounds hold
@@ -371,16 +377,12 @@ def _block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
     m, g = grid.shape
     starts = np.arange(0, g, FLAG_BLOCK)
     ends = np.minimum(starts + FLAG_BLOCK, g) - 1
-    d0 = grid[:, starts] - xref[:, None]
-    d1 = grid[:, ends] - xref[:, None]
-    c0 = yref[:, None] + slope[:, None] * d0
-    c1 = yref[:, None] + slope[:, None] * d1
-    a = (rsd**2 * (1.0 + 1.0 / n))[:, None]
-    b = (se**2)[:, None]
-    h0 = Z95 * np.sqrt(a + b * d0**2)
-    h1 = Z95 * np.sqrt(a + b * d1**2)
-    h_at_ref = Z95 * np.sqrt(a + b * 0.0**2)
-    h_min = np.where((d0 <= 0.0) & (d1 >= 0.0), h_at_ref, np.minimum(h0, h1))
+    P = [p[:, None] for p in (slope, se, xref, yref, rsd, n)]
+    x0, x1 = grid[:, starts], grid[:, ends]
+    c0, h0 = _centre_half(x0, *P)
+    c1, h1 = _centre_half(x1, *P)
+    _, h_at_ref = _centre_half(xref[:, None], *P)
+    h_min = np.where((x0 <= xref[:, None]) & (x1 >= xref[:, None]), h_at_ref, np.minimum(h0, h1))
     unbounded = ~np.all(grid[:, 1:] >= grid[:, :-1], axis=1)
     return (starts, ends, np.minimum(c0, c1), np.maximum(c0, c1), h_min, np.maximum(h0, h1),
             unbounded)
@@ -1367,9 +1369,7 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
     centre = BAND_SAMPLES // 2
 
     def failing(km, rows):  # km (r, g) → (r, g, samples)
-        mid = yref[rows, None] + slope[rows, None] * (km - xref[rows, None])
-        half = Z95 * np.sqrt(rsd[rows, None] ** 2 * (1.0 + 1.0 / n[rows, None])
-                             + se[rows, None] ** 2 * (km - xref[rows, None]) ** 2)
+        mid, half = _centre_half(km, *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
         stiff = np.exp(mid[..., None] + u * half[..., None])
         return below_zero(stiff)
 

@@ -43,6 +43,8 @@ def test_the_generator_writes_the_counted_rows_labelled_demo():
 
 @pytest.mark.django_db(transaction=True)  # VACUUM runs outside any transaction
 def test_the_command_vacuums_the_tables_it_wrote_in_bulk():
+    """Counted by PostgreSQL's own statistics view (``pg_stat_user_tables.vacuum_count``, PostgreSQL
+    manual, "The Cumulative Statistics System")."""
     from django.core.management import call_command
 
     def vacuumed():
