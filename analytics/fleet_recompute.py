@@ -34,6 +34,7 @@ import gc
 import io
 import logging
 import math
+import re
 import time
 from dataclasses import asdict, dataclass, field
 from types import SimpleNamespace
@@ -1444,15 +1445,16 @@ _lz4: bool | None = None  # whether the server has lz4, asked once per process
 
 def _copy_staged(cur, stage: str, columns_sql: str, columns: tuple[str, ...], rows) -> None:
     """A temporary table ``stage`` (dropped at commit; one left by an enclosing transaction is
-    replaced) filled with ``COPY``. Its JSONB compresses with lz4 where the server has it (see
-    migration 0007): staged values move into the stored tables as they were compressed."""
+    replaced) filled with ``COPY``. Its JSON columns (``json``/``jsonb``) compress with lz4 where
+    the server has it (see migrations 0007, 0009): staged values move into the stored tables as
+    they were compressed."""
     global _lz4
     if _lz4 is None:
         cur.execute("SELECT 1 FROM pg_settings WHERE name = 'default_toast_compression' "
                     "AND 'lz4' = ANY(enumvals)")
         _lz4 = cur.fetchone() is not None
     if _lz4:
-        columns_sql = columns_sql.replace(" jsonb", " jsonb COMPRESSION lz4")
+        columns_sql = re.sub(r" (jsonb|json)\b", r" \1 COMPRESSION lz4", columns_sql)
     cur.execute(f"DROP TABLE IF EXISTS {stage}")
     cur.execute(f"CREATE TEMP TABLE {stage} ({columns_sql}) ON COMMIT DROP")
     _copy_rows(cur, stage, columns, rows)
@@ -1504,7 +1506,7 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
         cur = dj.cursor  # the psycopg cursor
         _store_outcomes(cur, outcomes)
         _copy_staged(cur, "fleet_result_stage",
-                     "vehicle_id bigint, input_key text, payload jsonb, flips boolean",
+                     "vehicle_id bigint, input_key text, payload json, flips boolean",
                      ("vehicle_id", "input_key", "payload", "flips"),
                      ((v, keys[v], _json(stored[v]), payload_flips(results[v][0])) for v in vids))
         cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])

@@ -13,6 +13,8 @@ from django.db import models
 
 from inspections.models import Vehicle
 
+from .fields import JSONDocumentField
+
 
 class AnalysisRequest(models.Model):
     """Written in the same transaction as the record that caused it; sent after commit."""
@@ -40,7 +42,7 @@ class AnalysisResult(models.Model):
     input_key = models.CharField(max_length=120)
     model_version = models.CharField(max_length=40)
     computed_at = models.DateTimeField(auto_now_add=True)
-    payload = models.JSONField()
+    payload = JSONDocumentField()
     flips_to_toe_out = models.BooleanField(
         default=False, db_index=True,
         help_text="A rear corner's cornering toe change turns from toe-in (new) "
@@ -145,7 +147,7 @@ class AdviceItem(models.Model):
     due_km = models.PositiveIntegerField(null=True, blank=True)
     corner = models.CharField(max_length=2, blank=True)
     defect_category = models.CharField(max_length=10, blank=True)
-    body = models.JSONField(help_text="The full advice: evidence, interval, limit, caution.")
+    body = JSONDocumentField(help_text="The full advice: evidence, interval, limit, caution.")
 
     class Meta:
         indexes = [models.Index(fields=["vehicle", "urgency_rank"]),
