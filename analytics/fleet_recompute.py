@@ -1427,10 +1427,20 @@ def _advice_key(a: dict) -> str:
     return key(a)
 
 
+def _json_bytes(obj) -> bytes:
+    """UTF-8 JSON of a payload part: ``orjson`` (several times faster than ``json.dumps``; the
+    same shortest float representations; numpy scalars as numbers)."""
+    return orjson.dumps(obj, option=orjson.OPT_SERIALIZE_NUMPY)
+
+
 def _json(obj) -> str:
-    """JSON text of a payload part: ``orjson`` (several times faster than ``json.dumps``; the same
-    shortest float representations; numpy scalars as numbers)."""
-    return orjson.dumps(obj, option=orjson.OPT_SERIALIZE_NUMPY).decode()
+    """:func:`_json_bytes` as text."""
+    return _json_bytes(obj).decode()
+
+
+def _payload_json(payload: dict, advice: list[bytes]) -> str:
+    """The payload's JSON with its advice list made of the items' JSON already written."""
+    return _json({**payload, "advice": [orjson.Fragment(b) for b in advice]})
 
 
 def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
@@ -1499,16 +1509,20 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
     stored: dict[int, dict] = {}
     outcomes: dict[str, dict] = {}
     memo: dict[int, str] = {}  # the cached compliance entries are shared between payloads
+    # each advice item's JSON is written twice (in the payload and as its row's body): made once
+    bodies: dict[int, list[bytes]] = {}
     for v in vids:
         stored[v], used = compact_payload(results[v][0], memo)
         outcomes.update(used)
+        bodies[v] = [_json_bytes(a) for a in results[v][0]["advice"]]
     with transaction.atomic(), connection.cursor() as dj:
         cur = dj.cursor  # the psycopg cursor
         _store_outcomes(cur, outcomes)
         _copy_staged(cur, "fleet_result_stage",
                      "vehicle_id bigint, input_key text, payload json, flips boolean",
                      ("vehicle_id", "input_key", "payload", "flips"),
-                     ((v, keys[v], _json(stored[v]), payload_flips(results[v][0])) for v in vids))
+                     ((v, keys[v], _payload_json(stored[v], bodies[v]),
+                       payload_flips(results[v][0])) for v in vids))
         cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
         mine = {int(v): int(rid) for rid, v in cur.fetchall()}
         if not mine:
@@ -1523,8 +1537,8 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
              SEVERITIES.index(a["severity"]), a["what"][:300],
              dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
              int(a["due_km"]) if a["due_km"] is not None else None,
-             a["corner"] or "", a["defect_category"] or "", _json(a))
-            for v in mine_ids for a in results[v][0]["advice"]))
+             a["corner"] or "", a["defect_category"] or "", body.decode())
+            for v in mine_ids for a, body in zip(results[v][0]["advice"], bodies[v], strict=True)))
         cur.execute("DELETE FROM analytics_driftrate WHERE vehicle_id = ANY(%s)", [mine_ids])
         _copy_rows(cur, "analytics_driftrate", (
             "vehicle_id", "result_id", "platform_id", "corner", "angle", "slope_deg_per_10k"), (
