@@ -12,6 +12,8 @@ storage (SQLite: text).
 """
 from __future__ import annotations
 
+from typing import Any
+
 from django.db import models
 
 
@@ -23,7 +25,7 @@ class JSONDocumentField(models.JSONField):
             return "json"
         return super().db_type(connection)
 
-    def get_db_prep_value(self, value, connection, prepared=False):
+    def get_db_prep_value(self, value: Any, connection, prepared: bool = False) -> Any:
         if connection.vendor != "postgresql":
             return super().get_db_prep_value(value, connection, prepared)
         from django.db.backends.postgresql.operations import get_json_dumps
@@ -33,7 +35,7 @@ class JSONDocumentField(models.JSONField):
             value = self.get_prep_value(value)
         return Json(value, dumps=get_json_dumps(self.encoder))
 
-    def from_db_value(self, value, expression, connection):
+    def from_db_value(self, value: Any, expression, connection) -> Any:
         # psycopg parses ``json`` values itself (Django registers its text loader for ``jsonb``
         # only); other databases hand over text
         if connection.vendor == "postgresql":
