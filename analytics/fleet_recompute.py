@@ -3,8 +3,9 @@
 The per-vehicle path (:func:`analytics.analysis.analyse`) stays the reference; this module gives
 the same payload and advice for many vehicles at once:
 
-1. **Read** — one ``COPY (SELECT …) TO STDOUT`` per table per chunk (readings joined to their
-   current sessions, component checks, service events, and the input keys), straight into pandas.
+1. **Read** — one query per table per chunk (readings joined to their current sessions,
+   component checks, service events, and the input keys), each answered as one row of binary
+   column arrays that numpy takes as they arrive (:mod:`analytics.column_read`).
 2. **Drift** — every vehicle × corner × angle of the chunk as one NaN-padded stack (shape
    ``(series, readings)``, km and deg): Sen's slopes by :func:`~analytics.core.drift.theil_sen_stack`,
    the CUSUM step screen vectorised over the stack; the few series where the screen signals a step
@@ -31,7 +32,6 @@ import contextlib
 import datetime as dt
 import functools
 import gc
-import io
 import logging
 import math
 import re
@@ -46,6 +46,7 @@ import pandas as pd
 from django.db import connection, transaction
 from django.utils import timezone
 
+from analytics.column_read import read_columns
 from analytics.core import advice as adv
 from analytics.core import corner_from_dict, mirror_corner
 from analytics.core.advice import MODEL_VERSION, SEVERITIES
@@ -124,21 +125,6 @@ class ChunkStats:
 READ_SETTINGS = (("max_parallel_workers_per_gather", "0"), ("random_page_cost", "1.1"))
 
 
-def _copy_frame(sql: str, params: list, dtypes: dict | None = None) -> pd.DataFrame:
-    """``COPY (sql) TO STDOUT (FORMAT csv, HEADER)`` into a DataFrame, planned with
-    :data:`READ_SETTINGS` (inside a caller's transaction they last until that one ends)."""
-    buf = io.BytesIO()
-    with transaction.atomic(), connection.cursor() as cur:
-        raw = cur.cursor  # the psycopg cursor
-        raw.execute("SELECT " + ", ".join("set_config(%s, %s, true)" for _ in READ_SETTINGS),
-                    [x for pair in READ_SETTINGS for x in pair])
-        with raw.copy(f"COPY ({sql}) TO STDOUT (FORMAT csv, HEADER)", params) as cp:
-            for block in cp:
-                buf.write(block)
-    buf.seek(0)
-    return pd.read_csv(buf, dtype=dtypes, keep_default_na=False, na_values=[""])
-
-
 READINGS_SQL = """
 SELECT s.vehicle_id, r.session_id, s.measured_at, s.odometer_km, s.kind, r.corner,
        r.toe_deg, r.camber_deg, r.caster_deg
@@ -163,6 +149,17 @@ SELECT v.id AS vehicle_id,
   COALESCE((SELECT max(id) FROM inspections_componentcheck c WHERE c.vehicle_id = v.id), 0) AS c,
   COALESCE((SELECT max(id) FROM inspections_serviceevent e WHERE e.vehicle_id = v.id), 0) AS e
 FROM inspections_vehicle v WHERE v.id = ANY(%s)"""
+#: The columns of each query, by kind (:mod:`analytics.column_read`).
+READINGS_COLUMNS = {"vehicle_id": "int", "session_id": "int", "measured_at": "time",
+                    "odometer_km": "int", "kind": "code", "corner": "code", "toe_deg": "float",
+                    "camber_deg": "float", "caster_deg": "float"}
+CHECKS_COLUMNS = {"vehicle_id": "int", "id": "int", "checked_at": "time", "odometer_km": "int",
+                  "corner": "code", "part": "code", "play_mm": "float", "deflection_mm": "float",
+                  "deflection_force_n": "float", "findings": "json", "verdict": "code",
+                  "defect_category": "code"}
+EVENTS_COLUMNS = {"vehicle_id": "int", "performed_at": "time", "odometer_km": "int",
+                  "kind": "code", "corner": "code", "part": "code", "reason": "text"}
+KEYS_COLUMNS = {"vehicle_id": "int", "s": "int", "c": "int", "e": "int"}
 
 
 @dataclass
@@ -182,29 +179,23 @@ class ChunkFrames:
                              for f in (self.readings, self.checks, self.events)))
 
 
+def _read(sql: str, ids: list[int], columns: dict[str, str], time_column: str) -> pd.DataFrame:
+    """The rows of ``sql`` for vehicles ``ids`` as column arrays (:func:`read_columns`, planned
+    with :data:`READ_SETTINGS`), the time column named ``t`` (int64 ns UTC)."""
+    frame = read_columns(sql, [ids], columns, settings=READ_SETTINGS,
+                         order=("vehicle_id", time_column))
+    return frame.rename(columns={time_column: "t"})
+
+
 def read_frames(ids: list[int]) -> ChunkFrames:
-    """One ``COPY`` per table of vehicles ``ids`` (see :class:`ChunkFrames`)."""
-    rd = read_readings(ids)
-    ck = _copy_frame(CHECKS_SQL, [ids], dtypes={"corner": object, "part": object, "findings": object,
-                                                "verdict": object, "defect_category": object})
-    ev = _copy_frame(EVENTS_SQL, [ids], dtypes={"kind": object, "corner": object, "part": object,
-                                                "reason": object})
-    for frame, col in ((ck, "checked_at"), (ev, "performed_at")):
-        frame["t"] = _ns(frame[col]) if len(frame) else np.empty(0, np.int64)
-    return ChunkFrames(rd, ck, ev)
+    """One round trip per table of vehicles ``ids`` (see :class:`ChunkFrames`)."""
+    return ChunkFrames(read_readings(ids), _read(CHECKS_SQL, ids, CHECKS_COLUMNS, "checked_at"),
+                       _read(EVENTS_SQL, ids, EVENTS_COLUMNS, "performed_at"))
 
 
 def read_readings(ids: list[int]) -> pd.DataFrame:
     """The readings frame of :func:`read_frames` alone."""
-    rd = _copy_frame(READINGS_SQL, [ids], dtypes={"kind": object, "corner": object})
-    rd["t"] = _ns(rd["measured_at"]) if len(rd) else np.empty(0, np.int64)
-    return rd
-
-
-def _ns(col: pd.Series) -> np.ndarray:
-    """UTC timestamps (text from COPY) → int64 ns since the epoch."""
-    idx = pd.DatetimeIndex(pd.to_datetime(col, utc=True, format="ISO8601")).tz_localize(None)
-    return idx.as_unit("ns").asi8
+    return _read(READINGS_SQL, ids, READINGS_COLUMNS, "measured_at")
 
 
 def _local_day(ns: np.ndarray, tz_of_row: np.ndarray) -> np.ndarray:
@@ -223,7 +214,7 @@ def _day(n: int) -> dt.date:
 
 def input_keys(vehicle_ids: list[int], platform_stamp: int) -> dict[int, str]:
     """The :func:`analytics.inputs.input_key` of many vehicles in one query."""
-    k = _copy_frame(KEYS_SQL, [vehicle_ids])
+    k = read_columns(KEYS_SQL, [vehicle_ids], KEYS_COLUMNS)
     return {int(v): f"s{s}.c{c}.e{e}.p{platform_stamp}"
             for v, s, c, e in k[["vehicle_id", "s", "c", "e"]].itertuples(index=False)}
 
@@ -871,7 +862,6 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     for col in ("corner", "part", "reason"):
         ev[col] = ev[col].fillna("")
     ck["defect_category"] = ck["defect_category"].fillna("")
-    ck["findings"] = [orjson.loads(s) for s in ck["findings"].tolist()]
 
     # ---- per-vehicle scalars: odometer now, km per day, last marks
     odo = {}

@@ -237,8 +237,8 @@ def fleet_recompute(*, fan_out: bool = False) -> int:
     """Refresh pooled rates per platform, then analyse every vehicle whose inputs changed.
 
     On PostgreSQL this is the vectorised path (:mod:`analytics.fleet_recompute`: whole platform
-    chunks read with COPY; ``fan_out`` sends the chunks to the Celery workers instead of running
-    them here). Elsewhere (the SQLite demo) vehicle by vehicle. Returns the vehicles covered.
+    chunks read as column arrays; ``fan_out`` sends the chunks to the Celery workers instead of
+    running them here). Elsewhere (the SQLite demo) vehicle by vehicle. Returns the vehicles covered.
     """
     from django.db import connection
 

@@ -9,6 +9,7 @@ from django.db import connection
 
 from analytics import analysis, services
 from analytics import fleet_recompute as fr
+from analytics.column_read import read_columns
 from analytics.demo import large_fleet, scenario
 from analytics.inputs import vehicle_data
 from analytics.models import AdviceItem, AnalysisResult
@@ -131,7 +132,7 @@ def test_chunk_reads_are_planned_with_their_own_settings_for_their_own_transacti
     with connection.cursor() as cur:
         cur.execute(sql)
         before = cur.fetchone()
-    got = fr._copy_frame(sql, [], dtypes={"par": str, "rpc": str})
+    got = read_columns(sql, [], {"par": "text", "rpc": "text"}, settings=fr.READ_SETTINGS)
     assert got.iloc[0].tolist() == [v for _, v in fr.READ_SETTINGS]
     with connection.cursor() as cur:  # nothing left behind for the connection's next queries
         cur.execute(sql)
