@@ -198,11 +198,14 @@ def read_readings(ids: list[int]) -> pd.DataFrame:
     return _read(READINGS_SQL, ids, READINGS_COLUMNS, "measured_at")
 
 
-def _local_day(ns: np.ndarray, tz_of_row: np.ndarray) -> np.ndarray:
-    """int64 ns (UTC) → local calendar day number (days since 1970-01-01) in each row's zone."""
+def _local_day(ns: np.ndarray, zone_of_row: np.ndarray, zones: list[str]) -> np.ndarray:
+    """int64 ns (UTC) → local calendar day number (days since 1970-01-01) in each row's zone
+    (``zones[zone_of_row[i]]``, IANA names)."""
     out = np.empty(ns.size, dtype=np.int64)
-    for tz in np.unique(tz_of_row):
-        m = tz_of_row == tz
+    for z, tz in enumerate(zones):
+        m = zone_of_row == z
+        if not m.any():
+            continue
         local = pd.DatetimeIndex(ns[m]).tz_localize("UTC").tz_convert(tz).tz_localize(None)
         out[m] = local.to_numpy().astype("datetime64[D]").astype(np.int64)
     return out
@@ -855,10 +858,12 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     tz_of = {vid: vehicles[vid][1] for vid in ids}
     now = timezone.now()
     today_of = {vid: timezone.localtime(now, ZoneInfo(tz)).date() for vid, tz in tz_of.items()}
+    zones = sorted(set(tz_of.values()))
+    zone_of_vehicle = np.array([zones.index(tz_of[v]) for v in ids], dtype=np.int64)
+    ids_arr = np.array(ids, dtype=np.int64)  # sorted
     for frame in (rd, ck, ev):
-        tzs = frame["vehicle_id"].map(tz_of).to_numpy(dtype=object).astype(str) if len(frame) else \
-            np.empty(0, str)
-        frame["day"] = _local_day(frame["t"].to_numpy(), tzs) if len(frame) else np.empty(0, np.int64)
+        zone_of_row = zone_of_vehicle[np.searchsorted(ids_arr, frame["vehicle_id"].to_numpy())]
+        frame["day"] = _local_day(frame["t"].to_numpy(), zone_of_row, zones)
     for col in ("corner", "part", "reason"):
         ev[col] = ev[col].fillna("")
     ck["defect_category"] = ck["defect_category"].fillna("")
