@@ -779,6 +779,26 @@ def _flags_between(group_keys, times, adjust_group, adjust_times) -> np.ndarray:
     return flags
 
 
+def _runs(keys: np.ndarray):
+    """Runs of equal values of a grouped (sorted) key array of length n: whether each element
+    starts a run (n,), each element's run number (n,), each run's start and size (runs,)."""
+    first = np.r_[True, keys[1:] != keys[:-1]] if keys.size else np.zeros(0, dtype=bool)
+    gid = np.cumsum(first) - 1
+    starts = np.flatnonzero(first)
+    sizes = np.diff(np.r_[starts, keys.size])
+    return first, gid, starts, sizes
+
+
+def _decreasing_runs(keys: np.ndarray, x: np.ndarray) -> dict:
+    """``{key: whether x ever decreases within its run}`` of a grouped key array."""
+    first, gid, starts, _ = _runs(keys)
+    down = np.zeros(keys.size, dtype=bool)
+    down[1:] = (np.diff(x) < 0) & ~first[1:]
+    any_down = np.zeros(starts.size, dtype=bool)
+    any_down[gid[down]] = True
+    return dict(zip(keys[starts].tolist(), any_down.tolist(), strict=True))
+
+
 def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = None):
     """Current-segment stacks of every (vehicle, corner) of as-found readings.
 
@@ -788,29 +808,36 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
     angle, each group's segment start and whether its odometer goes backwards. With ``day0``
     (vehicle → today's local day number) also the fits over time (days before today ≤ 0).
     """
-    found = found.sort_values(["vehicle_id", "corner", "t"], kind="stable")
+    # groups are sorted runs of vc = vehicle·4 + corner index (CORNERS are in text order, so
+    # this is the stable sort by vehicle, corner, time); per-group sums and counts in numpy
     vc = found["vehicle_id"].to_numpy() * 4 + found["corner"].map(
         {c: i for i, c in enumerate(CORNERS)}).to_numpy()
+    order = np.lexsort((found["t"].to_numpy(), vc))
+    found = found.take(order)
+    vc = vc[order]
     # an adjustment belongs to every corner of its vehicle: compare on the vehicle
     flags = _flags_between(found["vehicle_id"].to_numpy(), found["t"].to_numpy(),
                            adj["vehicle_id"].to_numpy(), adj["t"].to_numpy())
-    first = np.r_[True, vc[1:] != vc[:-1]] if vc.size else np.zeros(0, bool)
+    first, gid, starts, sizes = _runs(vc)
     flags[first] = False
-    found = found.assign(vc=vc, flag=flags)
-    found = found.assign(seg=found.groupby("vc")["flag"].cumsum(),
-                         idx=found.groupby("vc").cumcount())
-    found = found.assign(last=found.groupby("vc")["seg"].transform("max"),
-                         ntot=found.groupby("vc")["idx"].transform("size"))
-    found = found[found["ntot"] >= 2]
-    cur = found[found["seg"] == found["last"]]
+    idx = np.arange(vc.size) - starts[gid]
+    cs = np.cumsum(flags)
+    seg = cs - cs[starts][gid]
+    last = seg[starts + sizes - 1][gid]
+    ntot = sizes[gid]
+    keep = ntot >= 2
+    found = found.assign(vc=vc, flag=flags, seg=seg, idx=idx, last=last, ntot=ntot)[keep]
+    x_dec = _decreasing_runs(vc[keep], found["odometer_km"].to_numpy())
+    now = (seg == last)[keep]
+    cur = found[now]
     if cur.empty:
         return dict(keys=np.zeros(0, dtype=np.int64), found=found, fits={}, alarms={}, seg={},
                     x_dec={}, day_fits={})
-    keys = pd.unique(cur["vc"])
-    gmap = {k: i for i, k in enumerate(keys)}
-    g = cur["vc"].map(gmap).to_numpy()
-    seg_start = cur.groupby("vc")["idx"].min()
-    pos = cur["idx"].to_numpy() - seg_start.loc[cur["vc"]].to_numpy()
+    cvc, cidx = vc[keep][now], idx[keep][now]
+    _, g, cstarts, _ = _runs(cvc)
+    keys = cvc[cstarts]
+    seg_start = cidx[cstarts]  # a group's index grows with time: its first is its minimum
+    pos = cidx - seg_start[g]
     W = int(pos.max()) + 1 if pos.size else 1
     X = _stack(g, pos, cur["odometer_km"].to_numpy(float), len(keys), W)
     XD = None
@@ -825,9 +852,9 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
         alarms[angle] = _step_screen(X, Y, f.slope, msd) & f.ok
         if XD is not None:
             day_fits[angle] = _line_fits(XD, Y, msd)
-    x_dec = (found.groupby("vc")["odometer_km"].diff() < 0).groupby(found["vc"]).any()
-    return dict(keys=keys, found=found, fits=fits, alarms=alarms, seg=seg_start.to_dict(),
-                x_dec=x_dec.to_dict(), day_fits=day_fits)
+    return dict(keys=keys, found=found, fits=fits, alarms=alarms,
+                seg=dict(zip(keys.tolist(), seg_start.tolist(), strict=True)), x_dec=x_dec,
+                day_fits=day_fits)
 
 
 def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | None = None,
