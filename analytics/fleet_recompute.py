@@ -1213,19 +1213,18 @@ def _segment_stack(rows: pd.DataFrame, rep: pd.DataFrame, value: np.ndarray):
         flags = _flags_between(gk, t, rep["gk"].to_numpy(), rep["t"].to_numpy())
     else:
         flags = np.zeros(len(rows), dtype=bool)
-    first = np.r_[True, gk[1:] != gk[:-1]]
+    first, gid, starts, sizes = _runs(gk)
     flags[first] = False
-    r = rows.assign(flag=flags, val=value)
-    r = r.assign(seg=r.groupby("gk")["flag"].cumsum(), idx=r.groupby("gk").cumcount())
-    r = r[r["seg"] == r.groupby("gk")["seg"].transform("max")]
-    keys = pd.unique(r["gk"])
-    gmap = {k: i for i, k in enumerate(keys)}
-    g = r["gk"].map(gmap).to_numpy()
-    start = r.groupby("gk")["idx"].min()
-    pos = r["idx"].to_numpy() - start.loc[r["gk"]].to_numpy()
+    cs = np.cumsum(flags)
+    seg = cs - cs[starts][gid]
+    now = seg == seg[starts + sizes - 1][gid]  # the group's last segment
+    idx = (np.arange(gk.size) - starts[gid])[now]
+    _, g, cstarts, _ = _runs(gk[now])
+    keys = gk[now][cstarts]
+    pos = idx - idx[cstarts][g]
     W = int(pos.max()) + 1 if pos.size else 1
-    X = _stack(g, pos, r["odometer_km"].to_numpy(float), len(keys), W)
-    Y = _stack(g, pos, r["val"].to_numpy(float), len(keys), W)
+    X = _stack(g, pos, rows["odometer_km"].to_numpy(float)[now], len(keys), W)
+    Y = _stack(g, pos, np.asarray(value, dtype=float)[now], len(keys), W)
     return keys, X, Y
 
 
@@ -1235,20 +1234,24 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     fcs: dict[int, list] = {}
     if ck.empty:
         return wear, fcs
-    ck = ck.sort_values(["vehicle_id", "corner", "part", "t"], kind="stable")
+    # groups: sorted runs of gk = (vehicle·4 + corner index)·64 + part index (corners and parts
+    # indexed in text order: the stable sort by vehicle, corner, part, time)
     part_ix = {p: i for i, p in enumerate(sorted(PARTS_BY_CODE))}
     ck = ck[ck["part"].isin(part_ix)]
     cix = {c: i for i, c in enumerate(CORNERS)}
-    ck = ck.assign(gk=(ck["vehicle_id"].to_numpy() * 4 + ck["corner"].map(cix).to_numpy()) * 64
-                   + ck["part"].map(part_ix).to_numpy())
+    gk = (ck["vehicle_id"].to_numpy() * 4 + ck["corner"].map(cix).to_numpy()) * 64 \
+        + ck["part"].map(part_ix).to_numpy()
+    order = np.lexsort((ck["t"].to_numpy(), gk))
+    ck = ck.take(order).assign(gk=gk[order])
     rep = ev[(ev["kind"] == "part_replaced") & ev["part"].isin(part_ix) & ev["corner"].isin(cix)]
     rep = rep.assign(gk=(rep["vehicle_id"].to_numpy() * 4 + rep["corner"].map(cix).to_numpy()) * 64
                      + rep["part"].map(part_ix).to_numpy())
-    size = ck.groupby("gk")["gk"].transform("size")
-    ck = ck[size >= 2]
+    _, gid, _, sizes = _runs(ck["gk"].to_numpy())
+    play_n = np.bincount(gid, weights=ck["play_mm"].notna().to_numpy())[gid]
+    defl_n = np.bincount(gid, weights=ck["deflection_mm"].notna().to_numpy())[gid]
+    keep = sizes[gid] >= 2
+    ck, play_n, defl_n = ck[keep], play_n[keep], defl_n[keep]
     kinds = ck["part"].map({c: p.kind for c, p in PARTS_BY_CODE.items()})
-    play_n = ck["play_mm"].notna().groupby(ck["gk"]).transform("sum")
-    defl_n = ck["deflection_mm"].notna().groupby(ck["gk"]).transform("sum")
     pending = {}  # gk → (vid, corner, part_code, entry, kind)
 
     # -- ball joints: play against km, limit from the platform
@@ -1283,7 +1286,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     if len(play_rows):
         keys, X, Y = _segment_stack(play_rows, rep, play_rows["play_mm"].to_numpy(float))
         f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["play_repeatability_mm"]))
-        xdec = (play_rows.groupby("gk")["odometer_km"].diff() < 0).groupby(play_rows["gk"]).any()
+        xdec = _decreasing_runs(play_rows["gk"].to_numpy(), play_rows["odometer_km"].to_numpy())
         good = [i for i, k in enumerate(keys) if f.ok[i] and not xdec.get(k, False)]
         gi = np.array(good, dtype=int)
         if gi.size:
@@ -1340,7 +1343,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     if len(crit):
         keys, X, Y = _segment_stack(crit, rep, np.log(crit["k"].to_numpy(float)))
         f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["stiffness_relative_sd"]))
-        xdec = (crit.groupby("gk")["odometer_km"].diff() < 0).groupby(crit["gk"]).any()
+        xdec = _decreasing_runs(crit["gk"].to_numpy(), crit["odometer_km"].to_numpy())
         by_fn: dict = {}
         for i, k in enumerate(keys):
             vid, corner, code, entry, _ = pending[k]
