@@ -346,8 +346,18 @@ def _step_screen(X: np.ndarray, Y: np.ndarray, slope0: np.ndarray, msd: np.ndarr
 def _centre_half(x, slope, se, xref, yref, rsd, n):
     """A trend's centre line and prediction half-width at ``x`` (as the core's ``LineTrend.band``);
     the one place their operations are written (:func:`_block_bounds` relies on them)."""
+    return _centre_half_of(x, *_band_terms(slope, se, xref, yref, rsd, n))
+
+
+def _band_terms(slope, se, xref, yref, rsd, n) -> tuple:
+    """The parts of :func:`_centre_half` that do not depend on ``x``, for evaluating one set of
+    trends at many ``x`` (each part is computed exactly as :func:`_centre_half` computes it)."""
+    return slope, xref, yref, rsd**2 * (1.0 + 1.0 / n), se**2
+
+
+def _centre_half_of(x, slope, xref, yref, a2, s2):
     d = x - xref
-    return yref + slope * d, Z95 * np.sqrt(rsd**2 * (1.0 + 1.0 / n) + se**2 * d**2)
+    return yref + slope * d, Z95 * np.sqrt(a2 + s2 * d**2)
 
 
 def _band(x, slope, se, xref, yref, rsd, n):
@@ -435,7 +445,7 @@ def _first_flags(grid: np.ndarray, P: tuple, lower: np.ndarray, upper: np.ndarra
     return _scan_blocks(starts, ends, possible, evaluate)
 
 
-def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]], test,
+def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]], make_test,
                   cur: np.ndarray) -> list[np.ndarray]:
     """Per row and criterion: the first x where the criterion holds — the first grid point
     flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
@@ -444,8 +454,10 @@ def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]],
     One bisection loop for every criterion and row at once; each element takes the same steps
     as alone. ``grid``: ``(m, g)`` x values; ``firsts``: per criterion, ``(any flagged, first
     flagged index)``, each ``(m,)`` (:func:`_first_flags`, :func:`_scan_blocks`);
-    ``test(x, rows, which)``: whether criterion ``which[j]`` holds for row ``rows[j]`` at
-    ``x[j]`` (all shape ``(r,)``). Returns one ``(m,)`` array per criterion."""
+    ``make_test(rows, which)``: a function of ``x`` giving whether criterion ``which[j]`` holds
+    for row ``rows[j]`` at ``x[j]`` (all shape ``(r,)``), called once per halving (the rows'
+    parameters are gathered once, not at every halving). Returns one ``(m,)`` array per
+    criterion."""
     outs, A, B, R, C = [], [], [], [], []
     for c, (anyf, i) in enumerate(firsts):
         out = np.full(grid.shape[0], np.nan)
@@ -459,9 +471,10 @@ def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]],
         C.append(np.full(rows.size, c))
     a, b, rows, which = (np.concatenate(v) for v in (A, B, R, C))
     if rows.size:
+        test = make_test(rows, which)
         for _ in range(BISECTIONS):
             mid = 0.5 * (a + b)
-            hit = test(mid, rows, which)
+            hit = test(mid)
             b = np.where(hit, mid, b)
             a = np.where(hit, a, mid)
         for c, out in enumerate(outs):
@@ -476,14 +489,21 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
     NaN for "not within the horizon"."""
     P = (slope, se, xref, yref, rsd, n)
 
-    def test(x, rows, which):  # 0: band edge out, 1: centre out, 2: whole band out
-        lo, c, hi = _band(x, *[p[rows] for p in P])
+    def make_test(rows, which):  # 0: band edge out, 1: centre out, 2: whole band out
+        terms = _band_terms(*[p[rows] for p in P])
         up, low = upper[rows], lower[rows]
-        return np.where(which == 0, (hi > up) | (lo < low),
-                        np.where(which == 1, (c > up) | (c < low), (lo > up) | (hi < low)))
+        edge, centre = which == 0, which == 1
+
+        def test(x):
+            c, half = _centre_half_of(x, *terms)
+            lo, hi = c - half, c + half
+            return np.where(edge, (hi > up) | (lo < low),
+                            np.where(centre, (c > up) | (c < low), (lo > up) | (hi < low)))
+        return test
 
     grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
-    early, likely, late = _bisect_first(grid, _first_flags(grid, P, lower, upper), test, current)
+    early, likely, late = _bisect_first(grid, _first_flags(grid, P, lower, upper), make_test,
+                                        current)
     e = np.where(np.isfinite(early), early, current)
     blo, _, bhi = _band(e, *P)
     side_upper = (bhi - upper) >= (lower - blo)
@@ -1412,13 +1432,18 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
         f = failing(grid[rows, j0:j1], rows)
         return f.any(axis=2), f[:, :, centre], f.all(axis=2)
 
-    def test(x, rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
-        f = failing(x[:, None], rows)[:, 0]
-        return np.where(which == 0, f.any(axis=1),
-                        np.where(which == 1, f[:, centre], f.all(axis=1)))
+    def make_test(rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
+        terms = _band_terms(*[p[rows] for p in (slope, se, xref, yref, rsd, n)])
+        some, at_centre = which == 0, which == 1
+
+        def test(x):
+            mid, half = _centre_half_of(x, *terms)
+            f = below_zero(np.exp(mid[:, None] + u * half[:, None]))
+            return np.where(some, f.any(axis=1), np.where(at_centre, f[:, centre], f.all(axis=1)))
+        return test
 
     firsts = _scan_blocks(starts, ends, [can_fail] * 3, evaluate)
-    early, likely, late = _bisect_first(grid, firsts, test, cur)
+    early, likely, late = _bisect_first(grid, firsts, make_test, cur)
     return early, likely, late
 
 

@@ -169,11 +169,14 @@ def test_the_bounded_stiffness_search_gives_the_full_grid_s_crossings(link, monk
     firsts = [(x.any(axis=1), np.argmax(x, axis=1))
               for x in (flags.any(axis=2), flags[:, :, c], flags.all(axis=2))]
 
-    def test(x, rows, which):
-        fl = _stiffness_failing(f, rows, x[:, None], sign)[:, 0]
-        return np.where(which == 0, fl.any(axis=1), np.where(which == 1, fl[:, c], fl.all(axis=1)))
+    def make_test(rows, which):
+        def test(x):
+            fl = _stiffness_failing(f, rows, x[:, None], sign)[:, 0]
+            return np.where(which == 0, fl.any(axis=1),
+                            np.where(which == 1, fl[:, c], fl.all(axis=1)))
+        return test
 
-    want = fr._bisect_first(grid, firsts, test, cur)
+    want = fr._bisect_first(grid, firsts, make_test, cur)
     for g, w in zip(got, want, strict=True):
         np.testing.assert_array_equal(g, w)
     assert all(a.any() and not a.all() for a, _ in firsts)  # failing and clear series alike
