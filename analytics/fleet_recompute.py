@@ -607,6 +607,65 @@ class SignByStiffness:
             return inside & (k_max <= self.root * (1.0 - self.SAFE))
         return inside & (k_min >= self.root * (1.0 + self.SAFE))
 
+    #: Margin (natural log of N/mm) by which a sample's exponent must keep clear of the zero's
+    #: guard zone for :meth:`band_fails` to decide it without computing it: far above the
+    #: rounding of ``np.exp``/``math.log`` and of the exponents (≈ 1e-15 for the stiffnesses of
+    #: bushes).
+    LOG_MARGIN = 1e-12
+
+    def band_fails(self, mid: np.ndarray, half: np.ndarray, u: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Whether any, the centre and every sample of stiffness bands is below zero: what
+        ``self(np.exp(mid[..., None] + u * half[..., None]))`` gives, reduced over its last axis
+        as ``any``, ``[..., len(u) // 2]`` and ``all``.
+
+        ``mid``, ``half``: log stiffness (ln N/mm) centre and half-width, arrays of one shape;
+        ``u``: the sample positions, ascending from -1 to 1 with 0 in the middle (as
+        ``np.linspace(-1, 1, odd)``). Three samples decide a band — its ends ``exp(mid ∓ half)``
+        and centre ``exp(mid)``, the very values the full evaluation computes there — where every
+        sample lies inside the range decided by the zero (:meth:`__call__`'s rule) and none lies
+        within its guard zone, where the rule is a threshold: the samples rise with ``u``, so
+        "any" and "every" are the ends' answers. That is checked, not assumed (in ``u``, with
+        :data:`LOG_MARGIN`); the other bands are evaluated sample by sample, exactly as before.
+        """
+        mid, half = np.asarray(mid, dtype=float), np.asarray(half, dtype=float)
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            k_lo, k_c, k_hi = np.exp(mid - half), np.exp(mid), np.exp(mid + half)
+            fast = (half >= 0) & np.isfinite(k_lo) & np.isfinite(k_hi) \
+                & (k_lo >= self.k_mono * (1.0 + self.SAFE)) \
+                & (k_hi <= self.K_HIGH * (1.0 - self.SAFE))
+            if self.root is None:
+                f_lo = f_c = f_hi = np.full(mid.shape, self.constant_sign)
+            else:
+                g1 = math.log(self.root * (1.0 - self.ROOT_GUARD)) - self.LOG_MARGIN
+                g2 = math.log(self.root * (1.0 + self.ROOT_GUARD)) + self.LOG_MARGIN
+                # sample i is at u_i = -1 + 2i/(s-1); a sample's exponent in [g1, g2] means
+                # u_i in [(g1 - mid)/half, (g2 - mid)/half] (widened: conservative)
+                steps = (u.size - 1) / 2.0
+                a = ((g1 - mid) / half + 1.0) * steps - 1e-6
+                b = ((g2 - mid) / half + 1.0) * steps + 1e-6
+                i_lo = np.maximum(np.ceil(a), 0.0)
+                i_hi = np.minimum(np.floor(b), u.size - 1.0)
+                guard = np.where(half > 0, i_lo <= i_hi, (mid >= g1) & (mid <= g2))
+                fast &= ~guard
+                if self.negative_above:
+                    f_lo, f_c, f_hi = k_lo > self.root, k_c > self.root, k_hi > self.root
+                else:
+                    f_lo, f_c, f_hi = k_lo < self.root, k_c < self.root, k_hi < self.root
+        # the rule is monotonic in k: "any" is the end most likely to fail, "every" the other
+        if self.root is not None and not self.negative_above:
+            f_any, f_all = f_lo, f_hi
+        else:
+            f_any, f_all = f_hi, f_lo
+        f_any, f_c, f_all = (np.where(fast, x, False) for x in (f_any, f_c, f_all))
+        slow = ~fast
+        if slow.any():
+            with np.errstate(over="ignore", invalid="ignore"):  # non-finite bands, as before
+                k = np.exp(mid[slow][:, None] + u * half[slow][:, None])
+            f = self(k)
+            f_any[slow], f_c[slow], f_all[slow] = f.any(axis=1), f[:, u.size // 2], f.all(axis=1)
+        return f_any, f_c, f_all
+
     def __call__(self, k: np.ndarray) -> np.ndarray:
         k = np.asarray(k, dtype=float)
         inside = (k >= self.k_mono) & (k <= self.K_HIGH)
@@ -1412,12 +1471,6 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
     slope, se, xref, yref = f.slope[gi], f.slope_se[gi], f.x_ref[gi], f.y_ref[gi]
     rsd, n = f.residual_sd[gi], f.n[gi].astype(float)
     u = np.linspace(-1.0, 1.0, BAND_SAMPLES)
-    centre = BAND_SAMPLES // 2
-
-    def failing(km, rows):  # km (r, g) → (r, g, samples)
-        mid, half = _centre_half(km, *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
-        stiff = np.exp(mid[..., None] + u * half[..., None])
-        return below_zero(stiff)
 
     grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
     # a block can fail only where some sample's stiffness can be below zero: the samples lie
@@ -1429,17 +1482,19 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
     can_fail[unbounded] = True
 
     def evaluate(rows, j0, j1):
-        f = failing(grid[rows, j0:j1], rows)
-        return f.any(axis=2), f[:, :, centre], f.all(axis=2)
+        mid, half = _centre_half(grid[rows, j0:j1],
+                                 *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
+        return below_zero.band_fails(mid, half, u)
 
     def make_test(rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
         terms = _band_terms(*[p[rows] for p in (slope, se, xref, yref, rsd, n)])
         some, at_centre = which == 0, which == 1
 
-        def test(x):
+        def test(x):  # few rows, 40 times: the samples themselves (band_fails pays off on blocks)
             mid, half = _centre_half_of(x, *terms)
             f = below_zero(np.exp(mid[:, None] + u * half[:, None]))
-            return np.where(some, f.any(axis=1), np.where(at_centre, f[:, centre], f.all(axis=1)))
+            return np.where(some, f.any(axis=1),
+                            np.where(at_centre, f[:, u.size // 2], f.all(axis=1)))
         return test
 
     firsts = _scan_blocks(starts, ends, [can_fail] * 3, evaluate)

@@ -39,3 +39,39 @@ def test_a_function_without_a_monotonic_range_is_evaluated_exactly():
     sign = SignByStiffness(wavy)
     k = np.geomspace(0.5, 2e6, 5000)
     np.testing.assert_array_equal(sign(k), wavy(k) < 0.0)
+
+
+@pytest.mark.parametrize("link", ["toe link", "spring link", "upper front"])
+def test_three_samples_decide_a_band_as_all_of_its_samples_do(link):
+    """``band_fails`` against evaluating every sample of every band with the sign itself,
+    including bands with a sample exactly at (and within a hair of) the zero, bands reaching
+    below the monotonic range or above its top, and bands of zero width."""
+    from analytics.core.wear import BAND_SAMPLES
+
+    corner = demo_corner("rear", "left")
+
+    def fn(k):
+        k = np.asarray(k, dtype=float)
+        return toe_change_for_link_stiffness(corner, FORCE, link, k.ravel()).reshape(k.shape)
+
+    sign = SignByStiffness(fn)
+    u = np.linspace(-1.0, 1.0, BAND_SAMPLES)
+    rng = np.random.default_rng(11)
+    centre = np.log(sign.root) if sign.root is not None else np.log(500.0)
+    mid = centre + rng.normal(0.0, 2.0, 4000)
+    half = np.abs(rng.normal(0.0, 1.0, 4000))
+    # a sample exactly at the zero and a hair beside it: sample i = 2 at ln(root)·(1 + ε)
+    eps = np.concatenate([[0.0], np.logspace(-15, -6, 20), -np.logspace(-15, -6, 20)])
+    h2 = np.abs(rng.normal(0.0, 0.5, eps.size))
+    mid = np.concatenate([mid, centre * (1.0 + eps) - u[2] * h2, [centre, np.log(2.0), 0.0],
+                          [np.log(3e6), np.log(0.5)]])
+    half = np.concatenate([half, h2, [0.0, 1.5, 0.0], [0.5, 0.3]])
+    samples = sign(np.exp(mid[:, None] + u * half[:, None]))
+    f_any, f_c, f_all = sign.band_fails(mid, half, u)
+    np.testing.assert_array_equal(f_any, samples.any(axis=1))
+    np.testing.assert_array_equal(f_c, samples[:, BAND_SAMPLES // 2])
+    np.testing.assert_array_equal(f_all, samples.all(axis=1))
+    assert f_any.any() and not f_all.all()  # failing and clear bands alike
+    # and in the shape the search uses: (rows, block columns)
+    got = sign.band_fails(mid[:4000].reshape(100, 40), half[:4000].reshape(100, 40), u)
+    np.testing.assert_array_equal(got[0].ravel(), f_any[:4000])
