@@ -60,7 +60,6 @@ from analytics.core.drift import (
     STEP_DIFF_CLIP,
     STEP_WARMUP_READINGS,
     CrossingForecast,
-    _km_to_date,
     _z,
     fit_drift,
     theil_sen_stack,
@@ -510,37 +509,61 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
     return early, likely, late, side_upper
 
 
-def _opt(v: float) -> float | None:
-    return float(v) if math.isfinite(v) else None  # numpy's float64 is a float: no array call
+NO_RATE_NOTES = ("no usable daily-distance rate: dates come only from a fit over time",)
 
 
-def _forecast(early, likely, late, side, *, current_km, current_date, km_per_day, horizon_end,
-              model, side_word=None, notes=None, time_dates=None) -> CrossingForecast:
-    """A :class:`CrossingForecast` as :func:`~analytics.core.drift.forecast_drift` builds it;
-    ``time_dates``: the (early, likely, late) dates of the fit over time, the earlier date wins."""
-    e, li, la = _opt(early), _opt(likely), _opt(late)
-    if li is not None and li == current_km:
-        status = "out_now"
-    elif e is not None:
-        status = "crossing"
-    else:
-        status = "not_within_horizon"
-    if notes is None:
-        notes = () if (km_per_day is not None and km_per_day > 0) else (
-            "no usable daily-distance rate: dates come only from a fit over time",)
-    if side_word is None:
-        side_word = None if e is None else ("upper" if side else "lower")
-    dates = [_km_to_date(v, current_km, current_date, km_per_day) for v in (e, li, la)] \
-        if km_per_day is not None and km_per_day > 0 else [None, None, None]
-    if time_dates is not None:
-        dates = [b if a is None else a if b is None else min(a, b)
-                 for a, b in zip(dates, time_dates, strict=True)]
-        if status == "not_within_horizon" and dates[0] is not None:
-            status = "crossing"
-    return CrossingForecast(
-        status=status, side=side_word, early_km=e, likely_km=li, late_km=la,
-        early_date=dates[0], likely_date=dates[1], late_date=dates[2],
-        horizon_km=horizon_end, model=model, notes=notes)
+def _forecasts(early, likely, late, side, *, current_km, today, km_per_day, model,
+               side_word=None, notes=None, time_days=None) -> list[tuple[CrossingForecast, dict]]:
+    """:func:`_forecast` and its JSON (``analysis._forecast_json``) for many rows at once, the
+    same values by the same arithmetic (dates as day numbers, converted once).
+
+    Arrays ``(m,)``: ``early``/``likely``/``late`` crossing km (NaN: none); ``side`` (upper limit
+    first; unused with ``side_word``); ``current_km``; ``today``: local day numbers (days since
+    1970-01-01); ``km_per_day`` (NaN: none). ``time_days``: ``(m, 3)`` day numbers of the same
+    crossings from the fit over time (NaN: none), or None.
+    """
+    current_km = np.asarray(current_km, dtype=float)
+    m = current_km.size
+    kms = np.stack([np.asarray(early, float), np.asarray(likely, float),
+                    np.asarray(late, float)], axis=1)
+    finite = np.isfinite(kms)
+    rate = np.asarray(km_per_day, dtype=float)
+    rate_ok = rate > 0
+    with np.errstate(invalid="ignore", divide="ignore"):
+        days = (kms - current_km[:, None]) / rate[:, None]  # as _km_to_date
+        has = finite & rate_ok[:, None] & ~(days > 365.25 * 200)
+        day = np.asarray(today, dtype=float)[:, None] + np.floor(np.maximum(days, 0.0))
+    e_ok = finite[:, 0]
+    status = np.where(finite[:, 1] & (kms[:, 1] == current_km), "out_now",
+                      np.where(e_ok, "crossing", "not_within_horizon"))
+    if time_days is not None:
+        td = np.asarray(time_days, dtype=float)
+        t_ok = np.isfinite(td)
+        day = np.where(has & t_ok, np.minimum(day, td), np.where(has, day, td))
+        has = has | t_ok
+        status = np.where((status == "not_within_horizon") & has[:, 0], "crossing", status)
+    dates = np.where(has, day, 0.0).astype(np.int64).astype("datetime64[D]")
+    d_obj, d_iso = dates.astype(object).tolist(), dates.astype(str).tolist()
+    has_l, fin_l, km_l = has.tolist(), finite.tolist(), kms.tolist()
+    status_l, rate_l = status.tolist(), rate_ok.tolist()
+    side_l = np.asarray(side, dtype=bool).tolist() if side_word is None else None
+    horizon_l = (current_km + HORIZON_KM).tolist()
+    out = []
+    for j in range(m):
+        k = [km_l[j][c] if fin_l[j][c] else None for c in range(3)]
+        d = [d_obj[j][c] if has_l[j][c] else None for c in range(3)]
+        iso = [d_iso[j][c] if has_l[j][c] else None for c in range(3)]
+        word = side_word if side_l is None else (
+            None if k[0] is None else ("upper" if side_l[j] else "lower"))
+        nts = notes if notes is not None else (() if rate_l[j] else NO_RATE_NOTES)
+        fc = CrossingForecast(status=status_l[j], side=word, early_km=k[0], likely_km=k[1],
+                              late_km=k[2], early_date=d[0], likely_date=d[1], late_date=d[2],
+                              horizon_km=horizon_l[j], model=model, notes=nts)
+        out.append((fc, {"status": status_l[j], "side": word, "early_km": k[0],
+                         "likely_km": k[1], "late_km": k[2], "early_date": iso[0],
+                         "likely_date": iso[1], "late_date": iso[2], "model": model,
+                         "notes": list(nts)}))
+    return out
 
 
 # --------------------------------------------------------------------------- platform caches
@@ -1260,26 +1283,23 @@ def _shrink_and_forecast(pend, cache: PlatformCache, drift, drift_fc, odo, today
                                 horizon=np.full(rows.size, HORIZON_KM))
     # the same drift over time (days before today, today = 0): dates that hold standing still
     drows = np.array([j for j, i in enumerate(rows) if pend[i][10] is not None], dtype=int)
-    tdates: dict[int, list] = {}
+    vids = [pend[i][0] for i in rows]
+    today = np.array([(today_of[v] - EPOCH).days for v in vids], dtype=float)
+    rate = np.array([np.nan if kmpd.get(v) is None else kmpd[v] for v in vids], dtype=float)
+    tdays = np.full((rows.size, 3), np.nan)
     if drows.size:
         dt_ = np.array([pend[rows[j]][10] for j in drows], dtype=float)  # (k, 6)
         hd = np.array([HORIZON_KM / r if (r := kmpd.get(pend[rows[j]][0])) else 3 * 365.25
                        for j in drows])
         de, dl, dla, _ = crossings(*dt_.T, current=np.zeros(drows.size), lower=lower[rows][drows],
                                    upper=upper[rows][drows], horizon=hd)
-        for q, j in enumerate(drows):
-            today = today_of[pend[rows[j]][0]]
-            tdates[int(j)] = [None if not np.isfinite(v) else today + dt.timedelta(days=math.floor(v))
-                              for v in (de[q], dl[q], dla[q])]
-    for j, i in enumerate(rows):
+        # days from today (≥ 0) → dates, NaN for none
+        tdays[drows] = today[drows, None] + np.floor(np.stack([de, dl, dla], axis=1))
+    fcs = _forecasts(e, li, la, side, current_km=cur, today=today, km_per_day=rate,
+                     model=DRIFT_MODEL, time_days=tdays)
+    for (fc, fc_json), i in zip(fcs, rows, strict=True):
         vid, corner, angle = pend[i][:3]
-        spec = cache.specs[(CORNER_AXLE[corner], angle)]
-        fc = _forecast(e[j], li[j], la[j], side[j], current_km=float(cur[j]),
-                       current_date=today_of[vid], km_per_day=kmpd.get(vid),
-                       horizon_end=float(cur[j]) + HORIZON_KM, model=DRIFT_MODEL,
-                       time_dates=tdates.get(j))
-        entry = drift[vid][f"{corner}.{angle}"]
-        entry["forecast"] = analysis._forecast_json(fc)
+        drift[vid][f"{corner}.{angle}"]["forecast"] = fc_json
         drift_fc[vid].append(adv.DriftForecastInput(corner=corner, angle=angle, forecast=fc))
 
 
@@ -1362,6 +1382,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     with_limit = {code for code, lim in cache.limits.items() if lim is not None and lim.max_play_mm}
     play_rows = bj[bj["part"].isin(with_limit)] if len(bj) else bj
     play_fc = {}
+    fc_json_of = {}  # the JSON of forecasts made here (the core's own get theirs below)
     if len(play_rows):
         keys, X, Y = _segment_stack(play_rows, rep, play_rows["play_mm"].to_numpy(float))
         f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["play_repeatability_mm"]))
@@ -1375,12 +1396,13 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
                                         f.residual_sd[gi], f.n[gi].astype(float), current=cur,
                                         lower=np.full(gi.size, -np.inf), upper=lim,
                                         horizon=np.full(gi.size, HORIZON_KM))
-            for j, i in enumerate(gi):
-                vid = pending[keys[i]][0]
-                play_fc[keys[i]] = _forecast(
-                    e[j], li[j], la[j], side[j], current_km=float(cur[j]),
-                    current_date=today_of[vid], km_per_day=kmpd.get(vid),
-                    horizon_end=float(cur[j]) + HORIZON_KM, model=PLAY_MODEL)
+            vids = [pending[keys[i]][0] for i in gi]
+            for i, pair in zip(gi, _forecasts(
+                    e, li, la, side, current_km=cur, model=PLAY_MODEL,
+                    today=[(today_of[v] - EPOCH).days for v in vids],
+                    km_per_day=[np.nan if kmpd.get(v) is None else kmpd[v] for v in vids]),
+                    strict=True):
+                play_fc[keys[i]], fc_json_of[keys[i]] = pair
         where = play_rows.groupby("gk").indices
         vals = play_rows[["odometer_km", "play_mm"]].to_numpy(float)
         for i, k in enumerate(keys):  # the rest: the core itself (it explains the refusal)
@@ -1436,13 +1458,13 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
             gi = np.array(rows)
             cur = np.array([odo[pending[keys[i]][0]] for i in gi])
             e, li, la = _stiffness_crossings(f, gi, below_zero, cur)
-            for j, i in enumerate(gi):
-                vid = pending[keys[i]][0]
-                stiff_fc[keys[i]] = _forecast(
-                    e[j], li[j], la[j], None, current_km=float(cur[j]),
-                    current_date=today_of[vid], km_per_day=kmpd.get(vid),
-                    horizon_end=float(cur[j]) + HORIZON_KM, model=analysis_bush_model(),
-                    side_word="lower", notes=(TOE_OUT_LABEL,))
+            vids = [pending[keys[i]][0] for i in gi]
+            for i, pair in zip(gi, _forecasts(
+                    e, li, la, None, current_km=cur, model=analysis_bush_model(),
+                    today=[(today_of[v] - EPOCH).days for v in vids],
+                    km_per_day=[np.nan if kmpd.get(v) is None else kmpd[v] for v in vids],
+                    side_word="lower", notes=(TOE_OUT_LABEL,)), strict=True):
+                stiff_fc[keys[i]], fc_json_of[keys[i]] = pair
                 pending[keys[i]][3]["criterion"] = \
                     "cornering toe change of the outer rear wheel turns toe-out"
 
@@ -1451,8 +1473,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
         fc = play_fc.get(gk) if kind == "play" else stiff_fc.get(gk)
         if fc is not None:
             # a stiffness forecast never carries the no-rate note (as the core)
-            fc_json = analysis._forecast_json(fc)
-            entry["forecast"] = fc_json
+            entry["forecast"] = fc_json_of.get(gk) or analysis._forecast_json(fc)
             fcs.setdefault(vid, []).append(adv.WearForecastInput(corner, PARTS_BY_CODE[code].label, fc))
         wear.setdefault(vid, {})[f"{corner}.{code}"] = entry
     return wear, fcs

@@ -182,3 +182,60 @@ def test_the_bounded_stiffness_search_gives_the_full_grid_s_crossings(link, monk
     assert all(a.any() and not a.all() for a, _ in firsts)  # failing and clear series alike
     blocks = len(range(0, FORECAST_GRID_POINTS, fr.FLAG_BLOCK))
     assert evaluated and evaluated[0] < m * blocks  # some blocks were ruled out
+
+
+def test_forecasts_made_for_many_series_at_once_are_the_core_s_forecast_drift():
+    """Status, side, crossing km, dates (from the daily-distance rate and from the fit over time,
+    the earlier winning), horizon and notes of ``fr._forecasts`` against the core's
+    ``forecast_drift`` series by series, given the same crossings; some series without a rate."""
+    import datetime as dt
+
+    from analytics.core.drift import forecast_drift
+
+    rng = np.random.default_rng(21)
+    m = 400
+    P, current, lower, upper = _random_series(rng, m)
+    rate = rng.uniform(20.0, 120.0, m)
+    rate[rng.random(m) < 0.2] = np.nan
+    today = rng.integers(19_000, 21_000, m)
+    # a trend over time (x = days before today): the km trend at a daily rate, faster or
+    # slower than the km trend says (so either date may be the earlier)
+    day_rate = np.where(np.isnan(rate), 50.0, rate) * rng.uniform(0.3, 3.0, m)
+    PD = (P[0] * day_rate, P[1] * day_rate, (P[2] - current) / day_rate, P[3], P[4], P[5])
+    want = []
+    early, likely, late, side = (np.full(m, np.nan) for _ in range(4))
+    tdays = np.full((m, 3), np.nan)
+    for i in range(m):
+        trend = LineTrend(*(float(p[i]) for p in P[:5]), int(P[5][i]))
+        trend_days = LineTrend(*(float(p[i]) for p in PD[:5]), int(PD[5][i]))
+        low = None if np.isinf(lower[i]) else float(lower[i])
+        r = None if np.isnan(rate[i]) else float(rate[i])
+        day0 = dt.date(1970, 1, 1) + dt.timedelta(days=int(today[i]))
+        want.append(forecast_drift(trend, current_km=float(current[i]), current_date=day0,
+                                   km_per_day=r, lower=low, upper=float(upper[i]),
+                                   horizon_km=fr.HORIZON_KM, trend_days=trend_days,
+                                   current_day=0.0, model=fr.DRIFT_MODEL))
+        c = forecast_crossing(trend, current_x=float(current[i]), lower=low,
+                              upper=float(upper[i]), horizon=fr.HORIZON_KM)
+        ct = forecast_crossing(trend_days, current_x=0.0, lower=low, upper=float(upper[i]),
+                               horizon=fr.HORIZON_KM / r if r else 3 * 365.25)
+        early[i], likely[i], late[i] = (np.nan if v is None else v for v in (c.early, c.likely,
+                                                                              c.late))
+        side[i] = c.side == "upper"
+        tdays[i] = [np.nan if v is None else today[i] + np.floor(v)
+                    for v in (ct.early, ct.likely, ct.late)]
+    got = fr._forecasts(early, likely, late, side.astype(bool), current_km=current, today=today,
+                        km_per_day=rate, model=fr.DRIFT_MODEL, time_days=tdays)
+    from analytics.analysis import _forecast_json
+
+    for (fc, js), w in zip(got, want, strict=True):
+        assert fc == w
+        assert js == _forecast_json(w)
+    statuses = {w.status for w in want}
+    assert statuses == {"out_now", "crossing", "not_within_horizon"}
+    assert any(w.notes for w in want) and any(w.early_date for w in want)
+    # the time fit's date won somewhere and the rate's elsewhere
+    pairs = [(w.early_date, dt.date(1970, 1, 1) + dt.timedelta(days=int(t[0])))
+             for w, t in zip(want, tdays, strict=True)
+             if w.early_date is not None and not np.isnan(t[0])]
+    assert any(d < t for d, t in pairs) and any(d == t for d, t in pairs)
