@@ -901,7 +901,8 @@ def _decreasing_runs(keys: np.ndarray, x: np.ndarray) -> dict:
     return dict(zip(keys[starts].tolist(), any_down.tolist(), strict=True))
 
 
-def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = None):
+def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = None,
+                  reuse: dict | None = None):
     """Current-segment stacks of every (vehicle, corner) of as-found readings.
 
     ``found``: as-found readings (vehicle_id, corner, t, odometer_km, toe_deg, camber_deg, day);
@@ -909,6 +910,12 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
     (``vehicle_id·4 + corner index``), the rows per group, the fits and step-screen alarms per
     angle, each group's segment start and whether its odometer goes backwards. With ``day0``
     (vehicle → today's local day number) also the fits over time (days before today ≤ 0).
+
+    ``reuse``: an earlier result (the platform pooling's, over the same readings): its segments,
+    fits and alarms are taken as they are when its inputs — the sorted readings' groups, times,
+    odometers and angles, and the adjustment flags — equal these, element for element (the
+    pooling segments at as-adjusted sessions only, the analysis also at alignment-adjusted
+    service events; recorded together, as they usually are, they flag the same readings).
     """
     # groups are sorted runs of vc = vehicle·4 + corner index (CORNERS are in text order, so
     # this is the stable sort by vehicle, corner, time); per-group sums and counts in numpy
@@ -922,50 +929,71 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
                            adj["vehicle_id"].to_numpy(), adj["t"].to_numpy())
     first, gid, starts, sizes = _runs(vc)
     flags[first] = False
+    inputs = (vc, found["t"].to_numpy(), found["odometer_km"].to_numpy(),
+              *(found[f"{angle}_deg"].to_numpy() for angle in ANGLES), flags)
+    if reuse is not None and len(reuse["inputs"]) == len(inputs) and all(
+            np.array_equal(x, y) for x, y in zip(reuse["inputs"], inputs, strict=True)):
+        base = reuse["base"]
+    else:
+        base = _segment_fits(found, vc, flags, gid, starts, sizes)
+    b = SimpleNamespace(**base)
+    found = found.assign(vc=vc, flag=flags, seg=b.seg, idx=b.idx, last=b.last,
+                         ntot=b.ntot)[b.keep]
+    out = dict(keys=b.keys, found=found, fits=b.fits, alarms=b.alarms,
+               seg=dict(zip(b.keys.tolist(), b.seg_start.tolist(), strict=True)),
+               x_dec=b.x_dec, day_fits={}, inputs=inputs, base=base)
+    if day0 is not None and b.keys.size:
+        cur = found[b.now]
+        d0 = cur["vehicle_id"].map(day0).to_numpy()
+        XD = _stack(b.g, b.pos, (cur["day"].to_numpy() - d0).astype(float), b.keys.size, b.W)
+        for angle in ANGLES:
+            out["day_fits"][angle] = _line_fits(XD, b.Y[angle], np.full(b.keys.size,
+                                                                        REPEATABILITY[angle]))
+    return out
+
+
+def _segment_fits(found: pd.DataFrame, vc, flags, gid, starts, sizes) -> dict:
+    """The segments, stacks (km and each angle), fits and step-screen alarms of
+    :func:`_drift_stacks` (``found`` sorted into groups ``vc`` with adjustment ``flags``)."""
     idx = np.arange(vc.size) - starts[gid]
     cs = np.cumsum(flags)
     seg = cs - cs[starts][gid]
     last = seg[starts + sizes - 1][gid]
     ntot = sizes[gid]
     keep = ntot >= 2
-    found = found.assign(vc=vc, flag=flags, seg=seg, idx=idx, last=last, ntot=ntot)[keep]
-    x_dec = _decreasing_runs(vc[keep], found["odometer_km"].to_numpy())
+    x_dec = _decreasing_runs(vc[keep], found["odometer_km"].to_numpy()[keep])
     now = (seg == last)[keep]
-    cur = found[now]
-    if cur.empty:
-        return dict(keys=np.zeros(0, dtype=np.int64), found=found, fits={}, alarms={}, seg={},
-                    x_dec={}, day_fits={})
+    base = dict(idx=idx, seg=seg, last=last, ntot=ntot, keep=keep, now=now, x_dec=x_dec,
+                keys=np.zeros(0, dtype=np.int64), seg_start=np.zeros(0, dtype=np.int64),
+                fits={}, alarms={}, g=None, pos=None, W=1, Y={})
     cvc, cidx = vc[keep][now], idx[keep][now]
+    if not cvc.size:
+        return base
+    cur = found[keep][now]
     _, g, cstarts, _ = _runs(cvc)
     keys = cvc[cstarts]
     seg_start = cidx[cstarts]  # a group's index grows with time: its first is its minimum
     pos = cidx - seg_start[g]
-    W = int(pos.max()) + 1 if pos.size else 1
+    W = int(pos.max()) + 1
     X = _stack(g, pos, cur["odometer_km"].to_numpy(float), len(keys), W)
-    XD = None
-    if day0 is not None:
-        d0 = cur["vehicle_id"].map(day0).to_numpy()
-        XD = _stack(g, pos, (cur["day"].to_numpy() - d0).astype(float), len(keys), W)
-    fits, alarms, day_fits = {}, {}, {}
+    fits, alarms, Y = {}, {}, {}
     for angle in ANGLES:
-        Y = _stack(g, pos, cur[f"{angle}_deg"].to_numpy(float), len(keys), W)
+        Y[angle] = _stack(g, pos, cur[f"{angle}_deg"].to_numpy(float), len(keys), W)
         msd = np.full(len(keys), REPEATABILITY[angle])
-        fits[angle] = f = _line_fits(X, Y, msd)
-        alarms[angle] = _step_screen(X, Y, f.slope, msd) & f.ok
-        if XD is not None:
-            day_fits[angle] = _line_fits(XD, Y, msd)
-    return dict(keys=keys, found=found, fits=fits, alarms=alarms,
-                seg=dict(zip(keys.tolist(), seg_start.tolist(), strict=True)), x_dec=x_dec,
-                day_fits=day_fits)
+        fits[angle] = f = _line_fits(X, Y[angle], msd)
+        alarms[angle] = _step_screen(X, Y[angle], f.slope, msd) & f.ok
+    base.update(keys=keys, seg_start=seg_start, fits=fits, alarms=alarms, g=g, pos=pos, W=W, Y=Y)
+    return base
 
 
 def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | None = None,
-                  stats: ChunkStats | None = None, frames: ChunkFrames | None = None
-                  ) -> dict[int, tuple[dict, list]]:
+                  stats: ChunkStats | None = None, frames: ChunkFrames | None = None,
+                  drift_reuse: dict | None = None) -> dict[int, tuple[dict, list]]:
     """Payload and advice of each vehicle of one platform chunk: ``{vehicle_id: (payload, advice)}``.
 
     ``only``: analyse just these vehicles (others are skipped); ``frames``: their rows already
-    read (:func:`read_frames` of a superset), else they are read here. Nothing is written.
+    read (:func:`read_frames` of a superset), else they are read here; ``drift_reuse``: the
+    pooling's drift stacks of the same readings (see :func:`_drift_stacks`). Nothing is written.
     """
     st = stats or ChunkStats()
     T = st.seconds
@@ -1043,7 +1071,8 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     adj_e = ev.loc[ev["kind"] == "alignment_adjusted", ["vehicle_id", "t"]]
     adj = pd.concat([adj_s, adj_e])
     if len(found):
-        ds = _drift_stacks(found, adj, {v: (today_of[v] - EPOCH).days for v in ids})
+        ds = _drift_stacks(found, adj, {v: (today_of[v] - EPOCH).days for v in ids},
+                           reuse=drift_reuse)
         keys, found, fits, alarms = ds["keys"], ds["found"], ds["fits"], ds["alarms"]
         seg_of, x_dec = ds["seg"], ds["x_dec"]
         # series entries; shrink + forecast collected for one vectorised pass
@@ -1711,10 +1740,12 @@ def _recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool) ->
     st = ChunkStats()
     t0 = time.perf_counter()
     frames = None
+    pooled: dict = {}
     if pool:
         frames = read_frames(list(vehicle_ids))
         st.seconds["read"] = time.perf_counter() - t0
-        platform_pool_fast(platform=Platform.objects.get(pk=platform_id), readings=frames.readings)
+        platform_pool_fast(platform=Platform.objects.get(pk=platform_id), readings=frames.readings,
+                           stacks_out=pooled)
         st.seconds["pool"] = time.perf_counter() - t0 - st.seconds["read"]
     t1 = time.perf_counter()
     stamp = _platform_stamp(platform_id)
@@ -1725,8 +1756,8 @@ def _recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool) ->
         input_key__in=set(keys.values())).values_list("vehicle_id", "input_key"))
     todo = {v for v, k in keys.items() if (v, k) not in done}
     st.seconds["keys"] = time.perf_counter() - t1
-    results = analyse_chunk(platform_id, list(keys), only=todo, stats=st, frames=frames) \
-        if todo else {}
+    results = analyse_chunk(platform_id, list(keys), only=todo, stats=st, frames=frames,
+                            drift_reuse=pooled.get("stacks")) if todo else {}
     t2 = time.perf_counter()
     vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=list(results)).only("id", "owner_id")}
     st.written = _write(platform_id, keys, results, vehicles)
@@ -1779,7 +1810,8 @@ def fleet_recompute(*, chunk_size: int = CHUNK_VEHICLES, fan_out: bool = False) 
 # --------------------------------------------------------------------------- pooled rates
 
 
-def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = None) -> int:
+def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = None,
+                       stacks_out: dict | None = None) -> int:
     """:func:`analytics.services.platform_pool` for a whole platform at once.
 
     One read of the platform's current readings; the same fits (as-adjusted sessions start a new
@@ -1787,7 +1819,8 @@ def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = No
     shrinkage (:func:`analytics.core.drift.shrink_slopes` with ``shrink_drift``'s variances).
     A pooled rate is only rewritten when it changed, so a rerun keeps the vehicles' input keys.
     ``readings``: the platform's current readings already read (``ChunkFrames.readings`` of all
-    its vehicles), else they are read here. Returns the pooled rates stored.
+    its vehicles), else they are read here. ``stacks_out``: receives the drift stacks under
+    ``"stacks"`` (for :func:`analyse_chunk` to reuse). Returns the pooled rates stored.
     """
     from analytics.core.drift import MIN_READINGS_OWN_SCALE, shrink_slopes
 
@@ -1804,6 +1837,8 @@ def platform_pool_fast(*, platform: Platform, readings: pd.DataFrame | None = No
     if found.empty:
         return 0
     ds = _drift_stacks(found, adj)
+    if stacks_out is not None:
+        stacks_out["stacks"] = ds
     keys = ds["keys"]
     n = 0
     existing = {(p.corner, p.angle): p for p in platform.pooled_rates.all()}

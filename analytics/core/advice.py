@@ -300,9 +300,13 @@ def add_months(d: dt.date, months: int) -> dt.date:
 
 
 def _min(*vals):
-    """Smallest of the values that are not None (None if all are)."""
-    present = [v for v in vals if v is not None]
-    return min(present) if present else None
+    """Smallest of the values that are not None (None if all are); the first of equals, as
+    ``min`` keeps it (a loop: this runs some 40 times per vehicle)."""
+    out = None
+    for v in vals:
+        if v is not None and (out is None or v < out):
+            out = v
+    return out
 
 
 @dataclass(frozen=True)

@@ -268,3 +268,64 @@ def test_a_vehicle_whose_odometer_goes_backwards_is_left_out_of_its_platform_s_p
                    for x, y in zip(a[2:5], b[2:5], strict=True))
     assert st.written == len(ids) - 1
     assert not AnalysisResult.objects.filter(vehicle=vehicle).exists()
+
+
+def test_the_analysis_reuses_the_pooling_s_drift_stacks_only_where_they_flag_the_same():
+    """Pooling segments the drift series at as-adjusted sessions, the analysis also at
+    alignment-adjusted service events. Recorded together (the demo) they flag the same readings
+    and the analysis takes the pooling's fits as they are; an adjustment event alone between two
+    as-found sessions makes them differ, and the analysis fits its own. Either way its payloads
+    are those it computes without the pooling's stacks."""
+    from django.contrib.auth import get_user_model
+
+    from inspections.models import AlignmentSession, Platform, ServiceEvent
+
+    _fleet()
+    platform_id, ids = max(fr.chunks(), key=lambda c: len(c[1]))
+    fitted = []
+    real = fr._segment_fits
+
+    def spy(*args, **kwargs):
+        fitted.append(1)
+        return real(*args, **kwargs)
+
+    def compare(expect_reuse: bool):
+        frames = fr.read_frames(ids)
+        pooled = {}
+        fr.platform_pool_fast(platform=Platform.objects.get(pk=platform_id),
+                              readings=frames.readings, stacks_out=pooled)
+        fitted.clear()
+        reused = fr.analyse_chunk(platform_id, ids, frames=frames, drift_reuse=pooled["stacks"])
+        assert (not fitted) is expect_reuse
+        own = fr.analyse_chunk(platform_id, ids, frames=frames)
+        assert list(reused) == list(own)
+        for vid in own:
+            assert json.dumps(reused[vid][0], default=float) == json.dumps(own[vid][0], default=float)
+            assert repr(reused[vid][1]) == repr(own[vid][1])
+
+    fr._segment_fits = spy
+    try:
+        compare(expect_reuse=True)
+        # an alignment adjusted between two as-found sessions of a vehicle with no adjustment
+        # between them: recorded without an as-adjusted session
+        gap = None
+        for vid in ids:
+            sessions = list(AlignmentSession.objects.filter(vehicle_id=vid).order_by(
+                "measured_at").values_list("kind", "measured_at", "odometer_km"))
+            events = list(ServiceEvent.objects.filter(
+                vehicle_id=vid, kind="alignment_adjusted").values_list("performed_at", flat=True))
+            for (k0, t0, km0), (k1, t1, _) in zip(sessions, sessions[1:], strict=False):
+                if k0 == k1 == "as_found" and not any(t0 < t <= t1 for t in events):
+                    gap = vid, t0, t1, km0
+            if gap:
+                break
+        assert gap, "the demo fleet has as-found sessions with no adjustment between them"
+        vid, t0, t1, km0 = gap
+        vehicle = Vehicle.objects.get(pk=vid)
+        ServiceEvent.objects.create(vehicle=vehicle, workshop=vehicle.workshop,
+                                    recorded_by=get_user_model().objects.first(),
+                                    performed_at=t0 + (t1 - t0) / 2, odometer_km=km0 + 1,
+                                    kind="alignment_adjusted")
+        compare(expect_reuse=False)
+    finally:
+        fr._segment_fits = real
