@@ -329,3 +329,33 @@ def test_the_analysis_reuses_the_pooling_s_drift_stacks_only_where_they_flag_the
         compare(expect_reuse=False)
     finally:
         fr._segment_fits = real
+
+
+def test_staged_result_lines_read_back_as_the_json_and_key_they_were_made_from():
+    """Result rows staged as COPY text lines (PostgreSQL documentation, COPY, "Text Format":
+    backslash, newline, carriage return and tab are backslash sequences) hold what psycopg's own
+    ``write_row`` stores: text with quotes, backslashes, control characters, a literal ``\\N``
+    and non-ASCII letters inside the JSON, and a key holding a tab and a backslash."""
+    import orjson
+
+    payload = {"why": ['toe "FL" \\ camber', "tab\there", "line\nbreak\r", "\\N", "ünï – ✓"],
+               "km": [1.5e-7, -0.0, 123456.789], "none": None, "nested": {"a\\b": [True, False]}}
+    body = orjson.dumps({"what": "a\\b\tc"})
+    rows = [(7, "s1.c2\t\\e3", payload, [body], True), (8, "s9.c9.e9.p0", {"x": 1}, [], False)]
+    with connection.cursor() as dj:
+        cur = dj.cursor
+        cols = "vehicle_id bigint, input_key text, payload json, flips boolean"
+        names = ("vehicle_id", "input_key", "payload", "flips")
+        fr._copy_staged(cur, "line_stage", cols, names, lines=(
+            fr._stage_line(v, k, fr._payload_json(p, b), f) for v, k, p, b, f in rows))
+        fr._copy_staged(cur, "row_stage", cols, names, rows=(
+            (v, k, fr._payload_json(p, b).decode(), f) for v, k, p, b, f in rows))
+        cur.execute("SELECT vehicle_id, input_key, payload::text, flips FROM line_stage "
+                    "ORDER BY vehicle_id")
+        by_lines = cur.fetchall()
+        cur.execute("SELECT vehicle_id, input_key, payload::text, flips FROM row_stage "
+                    "ORDER BY vehicle_id")
+        assert by_lines == cur.fetchall()
+    got = {v: (k, json.loads(p), f) for v, k, p, f in by_lines}
+    assert got[7] == ("s1.c2\t\\e3", {**payload, "advice": [{"what": "a\\b\tc"}]}, True)
+    assert got[8] == ("s9.c9.e9.p0", {"x": 1, "advice": []}, False)
