@@ -1662,8 +1662,9 @@ def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
 
 
 def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
-           vehicles: dict[int, Vehicle]) -> int:
+           owner_of: dict[int, int | None]) -> int:
     """Store results (once per input key) and their advice; returns results inserted.
+    ``owner_of``: each vehicle's owner id (None: no owner, no owner report).
 
     PostgreSQL's bulk path: the results are copied into a temporary table and inserted from it
     with ``ON CONFLICT DO NOTHING RETURNING`` — the rows returned are the ones this run stored
@@ -1676,7 +1677,7 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
 
     vids = sorted(results)
     previous: dict[int, set] = {}
-    owners = [v for v in vids if vehicles[v].owner_id is not None]
+    owners = [v for v in vids if owner_of.get(v) is not None]
     for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
         previous.setdefault(v, set()).add(k)
     stored: dict[int, dict] = {}
@@ -1719,7 +1720,8 @@ def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict
             for v in mine_ids for corner, angle, slope in drift_rate_values(results[v][0])))
         for v in owners:
             if v in mine:
-                r = AnalysisResult(pk=mine[v], vehicle=vehicles[v], input_key=keys[v],
+                r = AnalysisResult(pk=mine[v], vehicle=Vehicle(pk=v, owner_id=owner_of[v]),
+                                   input_key=keys[v],
                                    model_version=MODEL_VERSION, payload=stored[v])
                 owner_report_on_commit(result=r, previous_keys=previous.get(v, set()))
     return len(mine)
@@ -1777,8 +1779,8 @@ def _recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool) ->
     results = analyse_chunk(platform_id, list(keys), only=todo, stats=st, frames=frames,
                             drift_reuse=pooled.get("stacks")) if todo else {}
     t2 = time.perf_counter()
-    vehicles = {v.pk: v for v in Vehicle.objects.filter(pk__in=list(results)).only("id", "owner_id")}
-    st.written = _write(platform_id, keys, results, vehicles)
+    owner_of = dict(Vehicle.objects.filter(pk__in=list(results)).values_list("pk", "owner_id"))
+    st.written = _write(platform_id, keys, results, owner_of)
     st.seconds["write"] = time.perf_counter() - t2
     st.seconds["total"] = time.perf_counter() - t0
     return st
