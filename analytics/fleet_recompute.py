@@ -901,6 +901,22 @@ def _decreasing_runs(keys: np.ndarray, x: np.ndarray) -> dict:
     return dict(zip(keys[starts].tolist(), any_down.tolist(), strict=True))
 
 
+def _last_of_groups(frame: pd.DataFrame, by: tuple[str, ...] = ("vehicle_id", "corner", "part")
+                    ) -> pd.DataFrame:
+    """Each group's last row in (vehicle, time) order, in that order: what
+    ``frame.sort_values(["vehicle_id", "t"], kind="stable").groupby(list(by)).tail(1)`` gives."""
+    if not len(frame):
+        return frame
+    order = np.lexsort((frame["t"].to_numpy(), frame["vehicle_id"].to_numpy()))
+    key = np.zeros(len(frame), dtype=np.int64)
+    for col in by:
+        codes, uniques = pd.factorize(frame[col].to_numpy())
+        key = key * (len(uniques) + 1) + codes
+    key = key[order]
+    _, first_from_end = np.unique(key[::-1], return_index=True)
+    return frame.take(order[np.sort(key.size - 1 - first_from_end)])
+
+
 def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = None,
                   reuse: dict | None = None):
     """Current-segment stacks of every (vehicle, corner) of as-found readings.
@@ -1026,39 +1042,45 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     ck["defect_category"] = ck["defect_category"].fillna("")
 
     # ---- per-vehicle scalars: odometer now, km per day, last marks
-    odo = {}
+    G = len(ids)
+    ids_arr = np.array(ids, dtype=np.int64)  # sorted
+    top, seen = np.zeros(G), np.zeros(G, dtype=bool)
     for frame in (rd, ck, ev):
         if len(frame):
-            for vid, m in frame.groupby("vehicle_id")["odometer_km"].max().items():
-                odo[vid] = max(odo.get(vid, 0.0), float(m))
-    sess = rd.drop_duplicates("session_id")
+            at = np.searchsorted(ids_arr, frame["vehicle_id"].to_numpy())
+            np.maximum.at(top, at, frame["odometer_km"].to_numpy(float))
+            seen[at] = True
+    odo = {ids[i]: float(top[i]) for i in np.flatnonzero(seen)}
+    # one row per session: a session's readings are adjacent (sorted by vehicle, time, session)
+    sid = rd["session_id"].to_numpy()
+    sess = rd[np.r_[True, sid[1:] != sid[:-1]]] if len(rd) else rd
     kmpd: dict[int, float | None] = {}
     bad: set[int] = set()  # vehicles sent to the per-vehicle path
     if len(sess):
-        sess = sess.assign(g=sess["vehicle_id"].map({v: i for i, v in enumerate(ids)}))
-        sess = sess.assign(pos=sess.groupby("g").cumcount())
-        cnt = sess.groupby("g").size()
-        G = len(ids)
-        W = int(cnt.max())
+        g = np.searchsorted(ids_arr, sess["vehicle_id"].to_numpy())
+        _, gid, starts, sizes = _runs(g)
+        pos = np.arange(g.size) - starts[gid]
+        cnt = np.zeros(G, dtype=np.int64)
+        cnt[g[starts]] = sizes
+        W = int(sizes.max())
+        day = sess["day"].to_numpy()
+        odo_km = sess["odometer_km"].to_numpy(float)
         today_day = np.array([(today_of[v] - EPOCH).days for v in ids])
-        D = _stack(sess["g"].to_numpy(), sess["pos"].to_numpy(),
-                   (sess["day"].to_numpy() - today_day[sess["g"].to_numpy()]).astype(float), G, W)
-        odo_stack = _stack(sess["g"].to_numpy(), sess["pos"].to_numpy(),
-                   sess["odometer_km"].to_numpy(float), G, W)
-        ts = theil_sen_stack(D, odo_stack)
+        D = _stack(g, pos, (day - today_day[g]).astype(float), G, W)
+        ts = theil_sen_stack(D, _stack(g, pos, odo_km, G, W))
         # the core refuses an odometer going backwards in time or one distinct day
-        so = sess.sort_values(["g", "day"], kind="stable")
-        back = (so.groupby("g")["odometer_km"].diff() < 0).groupby(so["g"]).any()
-        nd = sess.groupby("g")["day"].nunique()
-        for g, vid in enumerate(ids):
-            n = int(cnt.get(g, 0))
-            if n < 2:
+        order = np.lexsort((day, g))  # the stable sort by vehicle, day
+        back = _decreasing_runs(g[order], odo_km[order])
+        span = int(day.max() - day.min()) + 1
+        nd = np.bincount(np.unique(g * span + (day - day.min())) // span, minlength=G)
+        for gi, vid in enumerate(ids):
+            if cnt[gi] < 2:
                 kmpd[vid] = None
                 continue
-            if bool(back.get(g, False)) or int(nd.get(g, 0)) < 2:
+            if back.get(gi, False) or nd[gi] < 2:
                 bad.add(vid)
                 continue
-            kmpd[vid] = float(ts.slope[g]) if ts.slope[g] > 0 else None
+            kmpd[vid] = float(ts.slope[gi]) if ts.slope[gi] > 0 else None
     T["prepare"] = T.get("prepare", 0) + time.perf_counter() - t1
     t2 = time.perf_counter()
 
@@ -1130,8 +1152,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     t4 = time.perf_counter()
 
     # ---- corner conditions, compliance (cached per condition), findings
-    latest = ck.sort_values(["vehicle_id", "t"], kind="stable").groupby(
-        ["vehicle_id", "corner", "part"]).tail(1)
+    latest = _last_of_groups(ck)
     comp: dict[int, tuple] = {}
     by_pos: dict[int, dict[str, list]] = {}
     for rec in zip(latest["vehicle_id"].tolist(), latest["corner"].tolist(), latest["part"].tolist(),
@@ -1163,7 +1184,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     def last_marks(frame: pd.DataFrame) -> dict:
         if not len(frame):
             return {}
-        t = frame.sort_values(["vehicle_id", "t"], kind="stable").groupby("vehicle_id").tail(1)
+        t = _last_of_groups(frame, by=("vehicle_id",))
         return {v: adv.ServiceMark(_day(d), float(o)) for v, d, o in zip(
             t["vehicle_id"].tolist(), t["day"].tolist(), t["odometer_km"].tolist(), strict=True)}
 

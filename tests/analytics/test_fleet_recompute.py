@@ -359,3 +359,23 @@ def test_staged_result_lines_read_back_as_the_json_and_key_they_were_made_from()
     got = {v: (k, json.loads(p), f) for v, k, p, f in by_lines}
     assert got[7] == ("s1.c2\t\\e3", {**payload, "advice": [{"what": "a\\b\tc"}]}, True)
     assert got[8] == ("s9.c9.e9.p0", {"x": 1, "advice": []}, False)
+
+
+@pytest.mark.parametrize("by", [("vehicle_id",), ("vehicle_id", "corner", "part")])
+def test_each_group_s_last_row_is_pandas_sort_then_groupby_tail(by):
+    """``_last_of_groups`` against the pandas expression it replaces, on rows in any order with
+    ties in time (the stable sort keeps their order, ``tail`` takes the last)."""
+    import numpy as np
+    import pandas as pd
+
+    rng = np.random.default_rng(4)
+    n = 3000
+    frame = pd.DataFrame({
+        "vehicle_id": rng.integers(1, 40, n), "t": rng.integers(0, 50, n) * 10**9,
+        "corner": rng.choice(["FL", "FR", "RL", "RR", ""], n),
+        "part": rng.choice(["lower_ball_joint", "toe_link_bush", "x"], n),
+        "row": np.arange(n)}).sample(frac=1, random_state=2)
+    want = frame.sort_values(["vehicle_id", "t"], kind="stable").groupby(list(by)).tail(1)
+    got = fr._last_of_groups(frame, by=by)
+    assert got["row"].tolist() == want["row"].tolist()
+    assert len(got) < n and fr._last_of_groups(frame.iloc[:0], by=by).empty
