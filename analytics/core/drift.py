@@ -196,20 +196,40 @@ def _sorted_row_median(a: NDArray[np.float64], count: NDArray[np.int64]) -> NDAr
     return out
 
 
+def _tie_sum(sorted_rows: NDArray[np.float64]) -> NDArray[np.int64]:
+    """Σ over groups of equal values of t(t−1)(2t+5) (t: the group's size), per row of an array
+    whose rows are sorted with NaN (padding) last; shape ``(m, n)`` → ``(m,)``."""
+    m, w = sorted_rows.shape
+    if not m or not w:
+        return np.zeros(m, dtype=np.int64)
+    valid = ~np.isnan(sorted_rows)
+    new_run = np.ones((m, w), dtype=bool)
+    new_run[:, 1:] = sorted_rows[:, 1:] != sorted_rows[:, :-1]
+    run = np.cumsum(new_run.ravel()) - 1  # run number of each element, row-major
+    t = np.bincount(run, weights=valid.ravel()).astype(np.int64)  # valid members per run
+    row_of_run = np.repeat(np.arange(m), new_run.sum(axis=1))
+    return np.bincount(row_of_run, weights=t * (t - 1) * (2 * t + 5), minlength=m).astype(np.int64)
+
+
 def _theil_sen_chunk(
     x: NDArray[np.float64], y: NDArray[np.float64], z: float
 ) -> tuple[NDArray[np.float64], ...]:
     valid = np.isfinite(x) & np.isfinite(y)
     n = valid.sum(axis=1)
-    dx = x[:, :, None] - x[:, None, :]  # dx[r, i, j] = x_i − x_j
-    dy = y[:, :, None] - y[:, None, :]
-    pair_ok = valid[:, :, None] & valid[:, None, :]
-    use = pair_ok & (dx > 0)
+    # each unordered pair once (i < j): its slope dy/dx is the same number whichever point comes
+    # first (x_i − x_j = −(x_j − x_i) and (−a)/(−b) = a/b exactly in IEEE arithmetic), so these
+    # are the slopes of the pairs with x_i > x_j over all ordered pairs, half the values to sort
+    i, j = np.triu_indices(x.shape[1], k=1)
+    dx = x[:, i] - x[:, j]
+    dy = y[:, i] - y[:, j]
+    use = valid[:, i] & valid[:, j] & (dx != 0)
     with np.errstate(invalid="ignore", divide="ignore"):
         slopes = np.where(use, dy / np.where(use, dx, 1.0), np.nan)
     m = x.shape[0]
-    slopes = np.sort(slopes.reshape(m, -1), axis=1)  # NaN sort last
-    nt = use.reshape(m, -1).sum(axis=1)
+    if not slopes.shape[1]:  # series of one point: no pair (one NaN column keeps the shapes)
+        slopes = np.full((m, 1), np.nan)
+    slopes = np.sort(slopes, axis=1)  # NaN sort last
+    nt = use.sum(axis=1)
     slope = _sorted_row_median(slopes, nt)
 
     xs = np.sort(np.where(valid, x, np.nan), axis=1)
@@ -218,12 +238,10 @@ def _theil_sen_chunk(
     y_ref = _sorted_row_median(ys, n)
     intercept = y_ref - slope * x_ref
 
-    # Sen (1968) eq. 2.6, tie corrections: Σ over tie groups of t(t−1)(2t+5)
-    # = Σ over members of (t_i − 1)(2t_i + 5), t_i = size of member i's group.
-    tx = ((dx == 0) & pair_ok).sum(axis=2)
-    ty = ((dy == 0) & pair_ok).sum(axis=2)
-    ties_x = np.where(valid, (tx - 1) * (2 * tx + 5), 0).sum(axis=1)
-    ties_y = np.where(valid, (ty - 1) * (2 * ty + 5), 0).sum(axis=1)
+    # Sen (1968) eq. 2.6, tie corrections: Σ over tie groups of t(t−1)(2t+5), the groups being
+    # the runs of equal values in each row sorted (xs, ys above)
+    ties_x = _tie_sum(xs)
+    ties_y = _tie_sum(ys)
     sigsq = (n * (n - 1) * (2 * n + 5) - ties_x - ties_y) / 18.0
     sigma = np.sqrt(np.clip(sigsq, 0.0, None))
     zneg = -z  # scipy uses the lower-tail quantile

@@ -64,6 +64,31 @@ def test_stack_with_nan_padding_matches_scipy_row_by_row():
         assert s.n[r] == k
 
 
+def test_stack_with_ties_unsorted_x_and_padding_matches_scipy_row_by_row():
+    """Repeated odometers and angles (the tie correction of Sen's interval), x not in order,
+    rows of every length including one point."""
+    rng = np.random.default_rng(17)
+    m, n = 60, 24
+    x = np.full((m, n), np.nan)
+    y = np.full((m, n), np.nan)
+    lengths = rng.integers(1, n + 1, m)
+    for r, k in enumerate(lengths):
+        x[r, :k] = np.round(rng.uniform(0, 60_000, k), -4)  # rounded: many ties
+        y[r, :k] = np.round(1e-5 * x[r, :k] + rng.normal(0, 0.05, k), 1)
+    s = theil_sen_stack(x, y, confidence=0.9)
+    checked = 0
+    for r, k in enumerate(lengths):
+        if np.unique(x[r, :k]).size < 2:
+            assert math.isnan(s.slope[r])
+            continue
+        ref = stats.theilslopes(y[r, :k], x[r, :k], alpha=0.9)  # reference: scipy.stats.theilslopes
+        assert s.slope[r] == pytest.approx(ref.slope, rel=1e-12, abs=1e-15)
+        assert s.slope_low[r] == pytest.approx(ref.low_slope, rel=1e-12, abs=1e-15)
+        assert s.slope_high[r] == pytest.approx(ref.high_slope, rel=1e-12, abs=1e-15)
+        checked += 1
+    assert checked > 40
+
+
 def test_a_stack_row_with_one_reading_holds_nan_without_warnings():
     s = theil_sen_stack([[1.0, np.nan], [1.0, 2.0]], [[0.1, np.nan], [0.1, 0.3]])
     assert math.isnan(s.slope[0]) and s.slope[1] == pytest.approx(0.2)
