@@ -514,8 +514,9 @@ NO_RATE_NOTES = ("no usable daily-distance rate: dates come only from a fit over
 
 def _forecasts(early, likely, late, side, *, current_km, today, km_per_day, model,
                side_word=None, notes=None, time_days=None) -> list[tuple[CrossingForecast, dict]]:
-    """:func:`_forecast` and its JSON (``analysis._forecast_json``) for many rows at once, the
-    same values by the same arithmetic (dates as day numbers, converted once).
+    """The :class:`CrossingForecast` of each row as :func:`~analytics.core.drift.forecast_drift`
+    builds it from given crossings, and its JSON (``analysis._forecast_json``), for many rows at
+    once: the same values by the same arithmetic (dates as day numbers, converted once).
 
     Arrays ``(m,)``: ``early``/``likely``/``late`` crossing km (NaN: none); ``side`` (upper limit
     first; unused with ``side_word``); ``current_km``; ``today``: local day numbers (days since
@@ -530,7 +531,7 @@ def _forecasts(early, likely, late, side, *, current_km, today, km_per_day, mode
     rate = np.asarray(km_per_day, dtype=float)
     rate_ok = rate > 0
     with np.errstate(invalid="ignore", divide="ignore"):
-        days = (kms - current_km[:, None]) / rate[:, None]  # as _km_to_date
+        days = (kms - current_km[:, None]) / rate[:, None]  # as the core's _km_to_date
         has = finite & rate_ok[:, None] & ~(days > 365.25 * 200)
         day = np.asarray(today, dtype=float)[:, None] + np.floor(np.maximum(days, 0.0))
     e_ok = finite[:, 0]
@@ -1043,7 +1044,6 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
 
     # ---- per-vehicle scalars: odometer now, km per day, last marks
     G = len(ids)
-    ids_arr = np.array(ids, dtype=np.int64)  # sorted
     top, seen = np.zeros(G), np.zeros(G, dtype=bool)
     for frame in (rd, ck, ev):
         if len(frame):
