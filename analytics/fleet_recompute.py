@@ -1100,17 +1100,30 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
         # series entries; shrink + forecast collected for one vectorised pass
         pend = []  # (vid, corner, angle, slope, se, xref, yref, rsd, n, sampling variance)
         fb_rows = {k: None for k in keys}
-        for gi, k in enumerate(keys):
-            vid, corner = int(k // 4), CORNERS[int(k % 4)]
+        # per angle, the fits as Python lists (one conversion, not one per element)
+        col = {}
+        for angle in ANGLES if len(keys) else ():
+            f, fd = fits[angle], ds["day_fits"][angle]
+            col[angle] = SimpleNamespace(
+                alarm=alarms[angle].tolist(), n=f.n.tolist(), ok=f.ok.tolist(),
+                slope=f.slope.tolist(), se=f.slope_se.tolist(), low=f.slope_low.tolist(),
+                high=f.slope_high.tolist(), xref=f.x_ref.tolist(), yref=f.y_ref.tolist(),
+                rsd=f.residual_sd.tolist(), sxx=f.sxx.tolist(), d_ok=fd.ok.tolist(),
+                d=list(zip(fd.slope.tolist(), fd.slope_se.tolist(), fd.x_ref.tolist(),
+                           fd.y_ref.tolist(), fd.residual_sd.tolist(), fd.n.tolist(),
+                           strict=True)))
+        spec_of = {(c, a): _spec_json(cache, c, a) for c in CORNERS for a in ANGLES}
+        for gi, k in enumerate(keys.tolist()):
+            vid, corner = k // 4, CORNERS[k % 4]
             if vid in bad:
                 continue
-            if bool(x_dec.get(k, False)):
+            if x_dec.get(k, False):
                 bad.add(vid)
                 continue
             for angle in ANGLES:
-                f = fits[angle]
+                c = col[angle]
                 key = f"{corner}.{angle}"
-                if alarms[angle][gi]:
+                if c.alarm[gi]:
                     st.fallback_series += 1
                     if fb_rows[k] is None:
                         fb_rows[k] = found[found["vc"] == k]
@@ -1122,26 +1135,24 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
                     if trend is not None:
                         pend.append((vid, corner, angle, *trend))
                     continue
-                entry = {"n_used": int(f.n[gi]), "segment_start": int(seg_of[k]), "steps": [],
+                entry = {"n_used": c.n[gi], "segment_start": seg_of[k], "steps": [],
                          "slope_deg_per_10k": None}
-                _spec_entry(entry, cache, corner, angle)
+                spec = spec_of[(corner, angle)]
+                if spec is not None:
+                    entry["spec"] = spec
                 drift[vid][key] = entry
-                if not f.ok[gi]:
+                if not c.ok[gi]:
                     continue
-                var = max(f.slope_se[gi] ** 2, f.residual_sd[gi] ** 2 / f.sxx[gi]) \
-                    if f.sxx[gi] > 0 else math.inf
-                var = var if var > 0 else math.inf
-                entry["slope_deg_per_10k"] = f.slope[gi] * 1e4
-                entry["slope_se_deg_per_10k"] = f.slope_se[gi] * 1e4
-                entry["slope_ci_deg_per_10k"] = [f.slope_low[gi] * 1e4, f.slope_high[gi] * 1e4]
-                fd = ds["day_fits"][angle]
-                day_trend = None
-                if fd.ok[gi]:
-                    day_trend = (float(fd.slope[gi]), float(fd.slope_se[gi]), float(fd.x_ref[gi]),
-                                 float(fd.y_ref[gi]), float(fd.residual_sd[gi]), int(fd.n[gi]))
-                pend.append((vid, corner, angle, float(f.slope[gi]), float(f.slope_se[gi]),
-                             float(f.x_ref[gi]), float(f.y_ref[gi]), float(f.residual_sd[gi]),
-                             int(f.n[gi]), var, day_trend))
+                entry["slope_deg_per_10k"] = c.slope[gi] * 1e4
+                entry["slope_se_deg_per_10k"] = c.se[gi] * 1e4
+                entry["slope_ci_deg_per_10k"] = [c.low[gi] * 1e4, c.high[gi] * 1e4]
+                # the sampling variance as the core works it out, in Python floats (x ** 2 is
+                # C's pow, which differs from x·x in the last bit now and then)
+                se, rsd, sxx = c.se[gi], c.rsd[gi], c.sxx[gi]
+                var = max(se ** 2, rsd ** 2 / sxx) if sxx > 0 else math.inf
+                pend.append((vid, corner, angle, c.slope[gi], se, c.xref[gi], c.yref[gi], rsd,
+                             c.n[gi], var if var > 0 else math.inf,
+                             c.d[gi] if c.d_ok[gi] else None))
         _shrink_and_forecast(pend, cache, drift, drift_fc, odo, today_of, kmpd)
     T["drift"] = T.get("drift", 0) + time.perf_counter() - t2
     t3 = time.perf_counter()
@@ -1235,11 +1246,19 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     return results
 
 
-def _spec_entry(entry: dict, cache: PlatformCache, corner: str, angle: str) -> None:
+def _spec_json(cache: PlatformCache, corner: str, angle: str) -> dict | None:
+    """The payload's ``spec`` of a corner and angle (one dict, shared by the chunk's entries:
+    nothing writes to it), or None without a spec."""
     spec = cache.specs.get((CORNER_AXLE[corner], angle))
+    if spec is None:
+        return None
+    return {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg, "source": spec.source}
+
+
+def _spec_entry(entry: dict, cache: PlatformCache, corner: str, angle: str) -> None:
+    spec = _spec_json(cache, corner, angle)
     if spec is not None:
-        entry["spec"] = {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg,
-                         "source": spec.source}
+        entry["spec"] = spec
 
 
 def _fallback_series(rows: pd.DataFrame, adj: pd.DataFrame, vid: int, corner: str, angle: str,
