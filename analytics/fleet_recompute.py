@@ -1598,18 +1598,23 @@ def _findings_chunk(latest: pd.DataFrame, ev: pd.DataFrame) -> dict[int, list]:
     if latest.empty:
         return out
     rep = ev[ev["kind"] == "part_replaced"]
-    last_rep = rep.groupby(["vehicle_id", "corner", "part"])["t"].max()
-    lr = latest.join(last_rep.rename("rep_t"), on=["vehicle_id", "corner", "part"])
-    for row in lr.itertuples(index=False):
-        if pd.notna(row.rep_t) and row.rep_t > row.t:
+    last_rep: dict[tuple, int] = {}  # (vehicle, corner, part) → its last replacement (ns)
+    for key, t in zip(zip(rep["vehicle_id"].tolist(), rep["corner"].tolist(),
+                          rep["part"].tolist(), strict=True), rep["t"].tolist(), strict=True):
+        if key not in last_rep or t > last_rep[key]:
+            last_rep[key] = t
+    cols = (latest[c].tolist() for c in ("vehicle_id", "corner", "part", "t", "findings",
+                                          "defect_category", "verdict", "day", "odometer_km"))
+    for vid, corner, code, t, findings, category, verdict, day, km in zip(*cols, strict=True):
+        replaced = last_rep.get((vid, corner, code))
+        if replaced is not None and replaced > t:
             continue
-        part = PARTS_BY_CODE.get(row.part)
-        text = ", ".join(x for x in row.findings if x != "none") or "no finding"
-        out.setdefault(int(row.vehicle_id), []).append(adv.ComponentFinding(
-            corner=row.corner, part=part.label if part else row.part,
-            category=row.defect_category or None,
-            note=f"{text}; verdict {row.verdict.replace('_', ' ')}",
-            checked_on=_day(row.day), odometer_km=float(row.odometer_km)))
+        part = PARTS_BY_CODE.get(code)
+        text = ", ".join(x for x in findings if x != "none") or "no finding"
+        out.setdefault(vid, []).append(adv.ComponentFinding(
+            corner=corner, part=part.label if part else code, category=category or None,
+            note=f"{text}; verdict {verdict.replace('_', ' ')}", checked_on=_day(day),
+            odometer_km=float(km)))
     return out
 
 
