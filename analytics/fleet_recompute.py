@@ -1130,7 +1130,8 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
                     rows = fb_rows[k]
                     res = _fallback_series(rows, adj, vid, corner, angle, today_of[vid])
                     drift[vid][key], trend, s = res
-                    _spec_entry(drift[vid][key], cache, corner, angle)
+                    if spec_of[(corner, angle)] is not None:
+                        drift[vid][key]["spec"] = spec_of[(corner, angle)]
                     steps_of[vid].extend(s)
                     if trend is not None:
                         pend.append((vid, corner, angle, *trend))
@@ -1253,12 +1254,6 @@ def _spec_json(cache: PlatformCache, corner: str, angle: str) -> dict | None:
     if spec is None:
         return None
     return {"nominal": spec.nominal_deg, "tolerance": spec.tolerance_deg, "source": spec.source}
-
-
-def _spec_entry(entry: dict, cache: PlatformCache, corner: str, angle: str) -> None:
-    spec = _spec_json(cache, corner, angle)
-    if spec is not None:
-        entry["spec"] = spec
 
 
 def _fallback_series(rows: pd.DataFrame, adj: pd.DataFrame, vid: int, corner: str, angle: str,
