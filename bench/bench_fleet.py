@@ -15,7 +15,10 @@ run:
 3. one vehicle's analysis after a new session (submit → commit → queue → worker → result);
 4. the fleet page and a vehicle page on the whole fleet (Django test client, in-process);
 5. one owner PDF, and a batch of owner PDFs through the workers;
-6. the peak resident size of the worker processes during the recompute.
+6. the peak resident size of the worker processes during the recompute;
+7. for reading the recompute's ratio: how much two CPU-bound processes at once get done against
+   one alone on this machine (a pure-Python loop), since the recompute runs two worker processes
+   and PostgreSQL on the 2 cores while the raw read runs one server process alone.
 
 Figures are wall-clock on a shared machine: other work running at the same time makes them noisy.
 """
@@ -157,6 +160,39 @@ def postgres_cpu_seconds() -> float:
         fields = rest.split()
         total += sum(int(f) for f in fields[11:15])  # utime, stime, cutime, cstime
     return total / tick
+
+
+def _spin(n: int) -> float:
+    """CPU seconds of a fixed pure-Python loop of ``n`` additions."""
+    c0 = time.process_time()
+    x = 0
+    for i in range(n):
+        x += i
+    return time.process_time() - c0
+
+
+def _spin_wall(n: int) -> float:
+    t0 = time.perf_counter()
+    _spin(n)
+    return time.perf_counter() - t0
+
+
+def parallel_capacity(n: int = 20_000_000, rounds: int = 3) -> tuple[float, float]:
+    """``(one alone s, speed-up of two at once)``: the loop of :func:`_spin` in one process
+    alone, then in two processes at once (each the best of ``rounds``). Two at once on two
+    free cores would give 2.0; a shared host's cores (the CPU time of one slowed by the other's
+    work) give less."""
+    import multiprocessing as mp
+
+    ctx = mp.get_context("fork")
+    alone = pair = float("inf")
+    with ctx.Pool(2) as pool:
+        for _ in range(rounds):
+            alone = min(alone, pool.apply(_spin_wall, (n,)))
+            t0 = time.perf_counter()
+            pool.map(_spin_wall, [n, n], chunksize=1)
+            pair = min(pair, time.perf_counter() - t0)
+    return alone, 2 * alone / pair
 
 
 def wait(predicate, timeout, poll=0.05):
@@ -455,12 +491,14 @@ def main():
                   f"{one['n']} samples)")
             return
         rc = bench_recompute(proc)
+        alone, speedup = parallel_capacity()
         if args.only == "recompute":
             print(f"recompute {rc['total_s']:.1f} s, raw read {_raw_text(rc)} → "
                   f"{rc['total_s'] / rc['raw_s']:.1f}×; worker CPU {rc['cpu_s']:.1f} s; "
                   f"PostgreSQL CPU {rc['pg_s']:.1f} s; "
                   f"peak RSS {rc['rss']:.0f} MiB; load {rc['load']:.1f}; "
-                  f"{rc['refused']} vehicles refused by the analysis")
+                  f"{rc['refused']} vehicles refused by the analysis; two CPU-bound processes "
+                  f"at once {speedup:.2f}× one alone")
             return
         imp = bench_import(args.import_rows)
         one = bench_single(args.samples)
@@ -515,6 +553,9 @@ def main():
                      f"({rep['batch'] / rep['n']:.2f} s each){note} | — | stated | — |")
     lines.append(f"| peak resident size of a worker process during the recompute | {rc['rss']:.0f} MiB "
                  f"| — | ≤ 2048 MiB | {'yes' if rc['rss'] <= 2048 else 'no'} |")
+    lines.append(f"| this machine's two cores: a pure-Python loop in two processes at once | "
+                 f"{speedup:.2f}× the work of one alone | one alone: {alone:.2f} s | — (context "
+                 f"for the recompute's ratio) | — |")
     print("\n".join(lines))
 
 
