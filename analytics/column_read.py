@@ -25,6 +25,8 @@ whose non-decreasing order is checked on arrival, and restored (stable sort) if 
 """
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 import orjson
 import pandas as pd
@@ -113,16 +115,34 @@ def read_columns(sql: str, params: list, columns: dict[str, str], *,
     round trip. ``settings``: planner settings for this read's own transaction only
     (``set_config(…, true)``, as ``SET LOCAL``; inside a caller's transaction they last until that
     one ends). ``order``: columns whose non-decreasing order is checked (see the module)."""
+    return read_columns_many([(sql, params, columns, order)], settings=settings)[0]
+
+
+def read_columns_many(queries: list[tuple[str, list, dict[str, str], tuple[str, ...]]], *,
+                      settings: tuple[tuple[str, str], ...] = ()) -> list[pd.DataFrame]:
+    """:func:`read_columns` of several ``(sql, params, columns, order)`` at once: with
+    ``settings``, one transaction and one ``set_config`` for all of them (each read its own
+    ``BEGIN``/``set_config``/``COMMIT`` would be three more round trips); without, each query
+    alone (a single statement is its own transaction)."""
     connection.ensure_connection()
-    with transaction.atomic(), psycopg.Cursor(connection.connection) as cur:
+    rows = []
+    scope = transaction.atomic(savepoint=False) if settings else contextlib.nullcontext()
+    with scope, psycopg.Cursor(connection.connection) as cur:
         for oid, loader in ((_INT8_ARRAY, _Int8Array), (_FLOAT8_ARRAY, _Float8Array),
                             (_TIMESTAMPTZ_ARRAY, _TimestamptzArray), (_JSON, _Json)):
             cur.adapters.register_loader(oid, loader)
         if settings:
             cur.execute("SELECT " + ", ".join("set_config(%s, %s, true)" for _ in settings),
                         [x for pair in settings for x in pair])
-        cur.execute(columns_sql(sql, columns), params, binary=True)
-        row = cur.fetchone()
+        for sql, params, columns, _order in queries:
+            cur.execute(columns_sql(sql, columns), params, binary=True)
+            rows.append(cur.fetchone())
+    return [_frame(row, columns, order)
+            for row, (_sql, _params, columns, order) in zip(rows, queries, strict=True)]
+
+
+def _frame(row: tuple, columns: dict[str, str], order: tuple[str, ...]) -> pd.DataFrame:
+    """The DataFrame of one aggregated result row (see :func:`read_columns`)."""
     data = {}
     n = None
     for (name, kind), value in zip(columns.items(), row, strict=True):

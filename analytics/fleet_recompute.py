@@ -46,7 +46,7 @@ import pandas as pd
 from django.db import connection, transaction
 from django.utils import timezone
 
-from analytics.column_read import read_columns
+from analytics.column_read import read_columns, read_columns_many
 from analytics.core import advice as adv
 from analytics.core import corner_from_dict, mirror_corner
 from analytics.core.advice import MODEL_VERSION, SEVERITIES
@@ -208,9 +208,16 @@ def _fetch(sql: str, params: list) -> list[tuple]:
 
 
 def read_frames(ids: list[int]) -> ChunkFrames:
-    """One round trip per table of vehicles ``ids`` (see :class:`ChunkFrames`)."""
-    return ChunkFrames(read_readings(ids), _read(CHECKS_SQL, ids, CHECKS_COLUMNS, "checked_at"),
-                       _read(EVENTS_SQL, ids, EVENTS_COLUMNS, "performed_at"))
+    """One round trip per table of vehicles ``ids``, in one transaction planned with
+    :data:`READ_SETTINGS` (see :class:`ChunkFrames`)."""
+    frames = read_columns_many(
+        [(sql, [ids], columns, ("vehicle_id", time_column))
+         for sql, columns, time_column in ((READINGS_SQL, READINGS_COLUMNS, "measured_at"),
+                                           (CHECKS_SQL, CHECKS_COLUMNS, "checked_at"),
+                                           (EVENTS_SQL, EVENTS_COLUMNS, "performed_at"))],
+        settings=READ_SETTINGS)
+    return ChunkFrames(*(f.rename(columns={c: "t"}) for f, c in
+                         zip(frames, ("measured_at", "checked_at", "performed_at"), strict=True)))
 
 
 def read_readings(ids: list[int]) -> pd.DataFrame:
