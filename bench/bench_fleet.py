@@ -162,23 +162,17 @@ def postgres_cpu_seconds() -> float:
     return total / tick
 
 
-def _spin(n: int) -> float:
-    """CPU seconds of a fixed pure-Python loop of ``n`` additions."""
-    c0 = time.process_time()
+def _spin_wall(n: int) -> float:
+    """Wall-clock seconds of a fixed pure-Python loop of ``n`` additions."""
+    t0 = time.perf_counter()
     x = 0
     for i in range(n):
         x += i
-    return time.process_time() - c0
-
-
-def _spin_wall(n: int) -> float:
-    t0 = time.perf_counter()
-    _spin(n)
     return time.perf_counter() - t0
 
 
 def parallel_capacity(n: int = 20_000_000, rounds: int = 3) -> tuple[float, float]:
-    """``(one alone s, speed-up of two at once)``: the loop of :func:`_spin` in one process
+    """``(one alone s, speed-up of two at once)``: the loop of :func:`_spin_wall` in one process
     alone, then in two processes at once (each the best of ``rounds``). Two at once on two
     free cores would give 2.0; a shared host's cores (the CPU time of one slowed by the other's
     work) give less."""

@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from django.db import connection
 
-from analytics.column_read import read_columns
+from analytics.column_read import read_columns, read_columns_many
 
 pytestmark = pytest.mark.django_db
 
@@ -86,3 +86,25 @@ def test_a_null_where_none_may_be_and_a_code_holding_the_separator_are_refused()
         read_columns("SELECT 1 AS x, 'F' || chr(31) || 'L' AS c", [], {"x": "int", "c": "code"})
     with pytest.raises(ValueError, match="timestamp outside"):
         read_columns("SELECT timestamptz 'infinity' AS t", [], {"t": "time"})
+
+
+@pytest.mark.django_db(transaction=True)  # the reads' own transaction, not a test's savepoint
+def test_several_reads_share_one_transaction_and_its_settings_and_leave_none_behind():
+    sql = "SELECT current_setting('random_page_cost') AS rpc"
+    now = "SELECT pg_current_xact_id()::text::bigint AS xid"
+    with connection.cursor() as cur:
+        cur.execute("SHOW random_page_cost")
+        before = cur.fetchone()[0]
+    a, b, c = read_columns_many([(sql, [], {"rpc": "text"}, ()),
+                                 (now, [], {"xid": "int"}, ()), (now, [], {"xid": "int"}, ())],
+                                settings=(("random_page_cost", "1.7"),))
+    assert a["rpc"].tolist() == ["1.7"]  # set once, seen by every query of the read
+    assert b["xid"].tolist() == c["xid"].tolist()  # one transaction for all of them
+    with connection.cursor() as cur:
+        cur.execute("SHOW random_page_cost")
+        assert cur.fetchone()[0] == before != "1.7"
+    # each query's frame is what read_columns gives for it alone
+    got = read_columns_many([(ROWS, [], COLUMNS, ()), (ROWS + " WHERE false", [], COLUMNS, ())])
+    alone = read_columns(ROWS, [], COLUMNS)
+    assert got[0].astype(str).values.tolist() == alone.astype(str).values.tolist()
+    assert len(got[1]) == 0 and list(got[1].columns) == list(COLUMNS)

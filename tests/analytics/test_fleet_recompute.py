@@ -379,3 +379,20 @@ def test_each_group_s_last_row_is_pandas_sort_then_groupby_tail(by):
     got = fr._last_of_groups(frame, by=by)
     assert got["row"].tolist() == want["row"].tolist()
     assert len(got) < n and fr._last_of_groups(frame.iloc[:0], by=by).empty
+
+
+def test_a_chunks_frames_are_used_as_read_when_every_row_is_its_own_and_copied_otherwise():
+    import pandas as pd
+
+    frames = fr.ChunkFrames(pd.DataFrame({"vehicle_id": [1, 1, 2], "x": [0.1, 0.2, 0.3]}),
+                            pd.DataFrame({"vehicle_id": [2], "y": ["a"]}),
+                            pd.DataFrame({"vehicle_id": pd.Series([], dtype="int64")}))
+    assert frames.of([1, 2]) is frames
+    assert frames.of([2, 1, 3]) is frames
+    one = frames.of([2])
+    assert one is not frames
+    assert one.readings.to_dict("list") == {"vehicle_id": [2], "x": [0.3]}
+    assert one.readings.index.tolist() == [0]
+    assert one.checks.to_dict("list") == {"vehicle_id": [2], "y": ["a"]}
+    one.readings["x"] = 9.9  # a copy: the frames read are left as they were
+    assert frames.readings["x"].tolist() == [0.1, 0.2, 0.3]
