@@ -192,12 +192,20 @@ class ChunkFrames:
         return ChunkFrames(*(f[m].reset_index(drop=True) for f, m in zip(frames, masks, strict=True)))
 
 
-def _read(sql: str, ids: list[int], columns: dict[str, str], time_column: str) -> pd.DataFrame:
-    """The rows of ``sql`` for vehicles ``ids`` as column arrays (:func:`read_columns`, planned
-    with :data:`READ_SETTINGS`), the time column named ``t`` (int64 ns UTC)."""
-    frame = read_columns(sql, [ids], columns, settings=READ_SETTINGS,
-                         order=("vehicle_id", time_column))
-    return frame.rename(columns={time_column: "t"})
+#: The tables a chunk reads: (query, columns, time column).
+READINGS = (READINGS_SQL, READINGS_COLUMNS, "measured_at")
+CHECKS = (CHECKS_SQL, CHECKS_COLUMNS, "checked_at")
+EVENTS = (EVENTS_SQL, EVENTS_COLUMNS, "performed_at")
+
+
+def _read(ids: list[int], tables) -> list[pd.DataFrame]:
+    """The rows of each of ``tables`` for vehicles ``ids`` as column arrays, one round trip each
+    in one transaction planned with :data:`READ_SETTINGS` (:func:`read_columns_many`), the time
+    column named ``t`` (int64 ns UTC)."""
+    frames = read_columns_many([(sql, [ids], columns, ("vehicle_id", time_column))
+                                for sql, columns, time_column in tables], settings=READ_SETTINGS)
+    return [f.rename(columns={time_column: "t"})
+            for f, (_sql, _columns, time_column) in zip(frames, tables, strict=True)]
 
 
 def _fetch(sql: str, params: list) -> list[tuple]:
@@ -208,21 +216,13 @@ def _fetch(sql: str, params: list) -> list[tuple]:
 
 
 def read_frames(ids: list[int]) -> ChunkFrames:
-    """One round trip per table of vehicles ``ids``, in one transaction planned with
-    :data:`READ_SETTINGS` (see :class:`ChunkFrames`)."""
-    frames = read_columns_many(
-        [(sql, [ids], columns, ("vehicle_id", time_column))
-         for sql, columns, time_column in ((READINGS_SQL, READINGS_COLUMNS, "measured_at"),
-                                           (CHECKS_SQL, CHECKS_COLUMNS, "checked_at"),
-                                           (EVENTS_SQL, EVENTS_COLUMNS, "performed_at"))],
-        settings=READ_SETTINGS)
-    return ChunkFrames(*(f.rename(columns={c: "t"}) for f, c in
-                         zip(frames, ("measured_at", "checked_at", "performed_at"), strict=True)))
+    """The readings, checks and events of vehicles ``ids`` (see :class:`ChunkFrames`)."""
+    return ChunkFrames(*_read(ids, (READINGS, CHECKS, EVENTS)))
 
 
 def read_readings(ids: list[int]) -> pd.DataFrame:
     """The readings frame of :func:`read_frames` alone."""
-    return _read(READINGS_SQL, ids, READINGS_COLUMNS, "measured_at")
+    return _read(ids, (READINGS,))[0]
 
 
 def _local_day(ns: np.ndarray, zone_of_row: np.ndarray, zones: list[str]) -> np.ndarray:
@@ -240,6 +240,14 @@ def _local_day(ns: np.ndarray, zone_of_row: np.ndarray, zones: list[str]) -> np.
 
 def _day(n: int) -> dt.date:
     return EPOCH + dt.timedelta(days=int(n))
+
+
+def _days_and_rates(vids, today_of, kmpd) -> tuple[np.ndarray, np.ndarray]:
+    """Each of ``vids``' local today as a day number and its daily-distance rate (km/day, NaN for
+    none), shape ``(len(vids),)`` each: the ``today``/``km_per_day`` of :func:`_forecasts`."""
+    today = np.array([(today_of[v] - EPOCH).days for v in vids], dtype=float)
+    rate = np.array([np.nan if kmpd.get(v) is None else kmpd[v] for v in vids], dtype=float)
+    return today, rate
 
 
 def input_keys(vehicle_ids: list[int], platform_stamp: int) -> dict[int, str]:
@@ -1039,8 +1047,8 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     ``only``: analyse just these vehicles (others are skipped); ``frames``: their rows already
     read (:func:`read_frames` of a superset; when they are exactly these vehicles' rows the
     frames are used as they are and gain working columns), else they are read here;
-    ``drift_reuse``: the
-    pooling's drift stacks of the same readings (see :func:`_drift_stacks`). Nothing is written.
+    ``drift_reuse``: the pooling's drift stacks of the same readings (see :func:`_drift_stacks`).
+    Nothing is written.
     """
     st = stats or ChunkStats()
     T = st.seconds
@@ -1378,9 +1386,7 @@ def _shrink_and_forecast(pend, cache: PlatformCache, drift, drift_fc, odo, today
                                 horizon=np.full(rows.size, HORIZON_KM))
     # the same drift over time (days before today, today = 0): dates that hold standing still
     drows = np.array([j for j, i in enumerate(rows) if pend[i][10] is not None], dtype=int)
-    vids = [pend[i][0] for i in rows]
-    today = np.array([(today_of[v] - EPOCH).days for v in vids], dtype=float)
-    rate = np.array([np.nan if kmpd.get(v) is None else kmpd[v] for v in vids], dtype=float)
+    today, rate = _days_and_rates([pend[i][0] for i in rows], today_of, kmpd)
     tdays = np.full((rows.size, 3), np.nan)
     if drows.size:
         dt_ = np.array([pend[rows[j]][10] for j in drows], dtype=float)  # (k, 6)
@@ -1492,12 +1498,9 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
                                         f.residual_sd[gi], f.n[gi].astype(float), current=cur,
                                         lower=np.full(gi.size, -np.inf), upper=lim,
                                         horizon=np.full(gi.size, HORIZON_KM))
-            vids = [pending[keys[i]][0] for i in gi]
-            for i, pair in zip(gi, _forecasts(
-                    e, li, la, side, current_km=cur, model=PLAY_MODEL,
-                    today=[(today_of[v] - EPOCH).days for v in vids],
-                    km_per_day=[np.nan if kmpd.get(v) is None else kmpd[v] for v in vids]),
-                    strict=True):
+            today, rate = _days_and_rates([pending[keys[i]][0] for i in gi], today_of, kmpd)
+            for i, pair in zip(gi, _forecasts(e, li, la, side, current_km=cur, model=PLAY_MODEL,
+                                              today=today, km_per_day=rate), strict=True):
                 play_fc[keys[i]], fc_json_of[keys[i]] = pair
         where = play_rows.groupby("gk").indices
         vals = play_rows[["odometer_km", "play_mm"]].to_numpy(float)
@@ -1554,12 +1557,10 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
             gi = np.array(rows)
             cur = np.array([odo[pending[keys[i]][0]] for i in gi])
             e, li, la = _stiffness_crossings(f, gi, below_zero, cur)
-            vids = [pending[keys[i]][0] for i in gi]
+            today, rate = _days_and_rates([pending[keys[i]][0] for i in gi], today_of, kmpd)
             for i, pair in zip(gi, _forecasts(
-                    e, li, la, None, current_km=cur, model=analysis_bush_model(),
-                    today=[(today_of[v] - EPOCH).days for v in vids],
-                    km_per_day=[np.nan if kmpd.get(v) is None else kmpd[v] for v in vids],
-                    side_word="lower", notes=(TOE_OUT_LABEL,)), strict=True):
+                    e, li, la, None, current_km=cur, model=analysis_bush_model(), today=today,
+                    km_per_day=rate, side_word="lower", notes=(TOE_OUT_LABEL,)), strict=True):
                 stiff_fc[keys[i]], fc_json_of[keys[i]] = pair
                 pending[keys[i]][3]["criterion"] = \
                     "cornering toe change of the outer rear wheel turns toe-out"
