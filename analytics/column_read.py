@@ -102,6 +102,15 @@ _AGGREGATE = {
 _EMPTY = {"int": np.int64, "float": np.float64, "time": np.int64}
 
 
+def _cursor() -> psycopg.Cursor:
+    """A psycopg cursor on Django's connection whose binary arrays load as numpy arrays."""
+    cur = psycopg.Cursor(connection.connection)
+    for oid, loader in ((_INT8_ARRAY, _Int8Array), (_FLOAT8_ARRAY, _Float8Array),
+                        (_TIMESTAMPTZ_ARRAY, _TimestamptzArray), (_JSON, _Json)):
+        cur.adapters.register_loader(oid, loader)
+    return cur
+
+
 def columns_sql(sql: str, columns: dict[str, str]) -> str:
     """The one-row query of :func:`read_columns` around ``sql``."""
     aggs = ", ".join(_AGGREGATE[kind].format(c=name) for name, kind in columns.items())
@@ -127,10 +136,7 @@ def read_columns_many(queries: list[tuple[str, list, dict[str, str], tuple[str, 
     connection.ensure_connection()
     rows = []
     scope = transaction.atomic(savepoint=False) if settings else contextlib.nullcontext()
-    with scope, psycopg.Cursor(connection.connection) as cur:
-        for oid, loader in ((_INT8_ARRAY, _Int8Array), (_FLOAT8_ARRAY, _Float8Array),
-                            (_TIMESTAMPTZ_ARRAY, _TimestamptzArray), (_JSON, _Json)):
-            cur.adapters.register_loader(oid, loader)
+    with scope, _cursor() as cur:
         if settings:
             cur.execute("SELECT " + ", ".join("set_config(%s, %s, true)" for _ in settings),
                         [x for pair in settings for x in pair])
@@ -139,6 +145,17 @@ def read_columns_many(queries: list[tuple[str, list, dict[str, str], tuple[str, 
             rows.append(cur.fetchone())
     return [_frame(row, columns, order)
             for row, (_sql, _params, columns, order) in zip(rows, queries, strict=True)]
+
+
+def fetch_arrays(sql: str, params: list) -> list[tuple]:
+    """All rows of ``sql`` (Django's connection, so inside the caller's transaction), fetched in
+    binary: ``bigint[]``, ``double precision[]`` and ``timestamptz[]`` columns arrive as numpy
+    arrays (as the kinds ``"int"``, ``"float"`` and ``"time"`` above: no NULL element), other
+    columns as psycopg loads them (text as ``str``, numbers as Python numbers)."""
+    connection.ensure_connection()
+    with _cursor() as cur:
+        cur.execute(sql, params, binary=True)
+        return cur.fetchall()
 
 
 def _frame(row: tuple, columns: dict[str, str], order: tuple[str, ...]) -> pd.DataFrame:

@@ -165,8 +165,12 @@ class AdviceItem(models.Model):
     class Meta:
         indexes = [models.Index(fields=["vehicle", "urgency_rank"]),
                    models.Index(fields=["due_date"]),
-                   # the fleet view's "what is due" order: a page is an index range, not a sort
-                   models.Index(fields=["urgency_rank", "due_date", "id"], name="advice_due_order")]
+                   # the fleet view's "what is due" order: a page is an index range, not a sort;
+                   # with the vehicle included, its counts by urgency (items, vehicles, overdue)
+                   # are an index-only scan of this narrow index, not of the wide rows (≈ 1.3 KB
+                   # each with their bodies: 74 MB for 57 000 items on 10 000 vehicles)
+                   models.Index(fields=["urgency_rank", "due_date", "id"], include=["vehicle"],
+                                name="advice_due_order")]
         ordering = ["urgency_rank", "due_date", "id"]
 
 

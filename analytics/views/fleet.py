@@ -26,6 +26,18 @@ class DueFilter(forms.Form):
                                       ("flips", "flips")], required=False)
 
 
+class CountedPaginator(Paginator):
+    """A paginator told its length (counted already with the urgency tallies)."""
+
+    def __init__(self, object_list, per_page, *, count: int) -> None:
+        super().__init__(object_list, per_page)
+        self._count = count
+
+    @property
+    def count(self) -> int:
+        return self._count
+
+
 def _filters(request) -> dict:
     form = DueFilter(request.GET)
     return form.cleaned_data if form.is_valid() else {}
@@ -41,12 +53,15 @@ def fleet(request):
     if request.GET.get("format") == "csv":
         return _csv(request, f.get("show") or "due", due,
                     selectors.toe_out_flips_export(request.user))
-    page = Paginator(due, PAGE).get_page(f.get("page") or 1)
+    counts = selectors.urgency_counts(request.user)
+    page = CountedPaginator(due, PAGE, count=selectors.due_count(
+        counts, severity=f.get("severity") or None, overdue_only=bool(f.get("overdue")))
+    ).get_page(f.get("page") or 1)
     flips_page = Paginator(selectors.toe_out_flips(request.user), PAGE).get_page(
         f.get("flips_page") or 1)
     flips_page.object_list = selectors.with_flip_values(flips_page.object_list)
     return render(request, "analytics/fleet.html", {
-        "counts": selectors.urgency_counts(request.user), "page": page, "flips": flips_page,
+        "counts": counts, "page": page, "flips": flips_page,
         "rates": selectors.drift_distribution(request.user), "filters": f,
         "severities": SEVERITIES, "today": timezone.localdate(),
         "query": request.GET.copy(),

@@ -108,3 +108,20 @@ def test_several_reads_share_one_transaction_and_its_settings_and_leave_none_beh
     alone = read_columns(ROWS, [], COLUMNS)
     assert got[0].astype(str).values.tolist() == alone.astype(str).values.tolist()
     assert len(got[1]) == 0 and list(got[1].columns) == list(COLUMNS)
+
+
+def test_fetch_arrays_gives_numpy_arrays_equal_to_the_ordinary_fetch():
+    from analytics.column_read import fetch_arrays
+
+    sql = ("SELECT g, 'k' || g AS k, array_agg(x::float8 / 7 ORDER BY x) AS f, "
+           "array_agg(x::bigint * 3 ORDER BY x) AS i FROM generate_series(1, 20) x, "
+           "LATERAL (SELECT x %% 3 AS g) q WHERE x <> %s GROUP BY g ORDER BY g")
+    with connection.cursor() as cur:
+        cur.execute(sql, [5])
+        expected = cur.fetchall()
+    got = fetch_arrays(sql, [5])
+    assert len(got) == len(expected) == 3
+    for (g, k, f, i), (eg, ek, ef, ei) in zip(got, expected, strict=True):
+        assert (g, k) == (eg, ek)
+        assert isinstance(f, np.ndarray) and f.dtype == np.float64 and f.tolist() == ef
+        assert isinstance(i, np.ndarray) and i.dtype == np.int64 and i.tolist() == ei

@@ -55,9 +55,10 @@ class DriftRateTests(PersonaTestCase):
         assert list(selectors.toe_out_flips(self.tech_b)) == []
         row, = selectors.with_flip_values(selectors.toe_out_flips(self.manager_a))
         comp = result.payload["compliance"]["RL"]
-        assert row.rl_flip == "true" and float(row.rl_now) < 0 < float(row.rl_new)
-        assert (float(row.rl_new), float(row.rl_now)) == (comp["toe_change_new_deg"],
-                                                          comp["toe_change_measured_deg"])
+        assert row.rl_flip is True and row.rl_now < 0 < row.rl_new
+        assert (row.rl_new, row.rl_now) == (comp["toe_change_new_deg"],
+                                            comp["toe_change_measured_deg"])
+        assert row.rr_flip in (True, False) and isinstance(row.rr_new, float)
 
     def test_the_database_bins_are_numpys_equal_width_bins(self):
         # independent reference: numpy, floor((rate - lo) / width) clipped to the 12 bins

@@ -64,6 +64,27 @@ class AccessTests(AnalysisPagesTestCase):
         self.assertContains(page, self.van_f.plate)
         self.assertNotContains(page, self.car_a.plate)
 
+    def test_the_due_lists_count_is_the_number_of_items_it_pages_through(self):
+        # the count comes from the urgency tallies; the reference is the list's own queryset
+        from analytics import selectors
+
+        def shown(response) -> int:
+            return int(re.search(r'Due and overdue <span class="count">(\d+)</span>',
+                                 response.content.decode()).group(1))
+
+        for user in (self.manager_a, self.fleet_manager, self.admin):
+            self.client.force_login(user)
+            for severity in ("", *selectors.SEVERITIES):
+                for overdue in (False, True):
+                    query = f"?severity={severity}" + ("&overdue=1" if overdue else "")
+                    expected = selectors.due_advice(user, severity=severity or None,
+                                                    overdue_only=overdue).count()
+                    got = shown(self.client.get(reverse("analytics:fleet") + query))
+                    self.assertEqual(got, expected, (user.username, query))
+            counts = selectors.urgency_counts(user)
+            self.assertEqual([c["severity"] for c in counts], list(selectors.SEVERITIES))
+            self.assertEqual(sum(c["items"] for c in counts), selectors.advice_for(user).count())
+
     def test_owners_and_technicians_cannot_open_the_fleet_view(self):
         for user in (self.owner, self.tech_a):
             self.client.force_login(user)
