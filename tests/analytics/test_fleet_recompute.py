@@ -361,6 +361,25 @@ def test_staged_result_lines_read_back_as_the_json_and_key_they_were_made_from()
     assert got[8] == ("s9.c9.e9.p0", {"x": 1, "advice": []}, False)
 
 
+def test_a_staging_table_is_made_once_per_session_and_emptied_before_each_use():
+    """The second write of a session stages into the same table (same oid: not dropped and made
+    again) and sees only its own rows, even inside one enclosing transaction."""
+    with connection.cursor() as dj:
+        cur = dj.cursor
+        cols, names = "k text, j json", ("k", "j")
+        fr._copy_staged(cur, "reuse_stage", cols, names, rows=[("a", "{}"), ("b", "[1]")])
+        cur.execute("SELECT 'reuse_stage'::regclass::oid, "
+                    "(SELECT relpersistence FROM pg_class WHERE oid = 'reuse_stage'::regclass)")
+        oid, persistence = cur.fetchone()
+        cur.execute("SELECT k FROM reuse_stage ORDER BY k")
+        assert cur.fetchall() == [("a",), ("b",)] and persistence == "t"
+        fr._copy_staged(cur, "reuse_stage", cols, names, rows=[("c", "2")])
+        cur.execute("SELECT k, j::text FROM reuse_stage")
+        assert cur.fetchall() == [("c", "2")]
+        cur.execute("SELECT 'reuse_stage'::regclass::oid")
+        assert cur.fetchone()[0] == oid
+
+
 @pytest.mark.parametrize("by", [("vehicle_id",), ("vehicle_id", "corner", "part")])
 def test_each_group_s_last_row_is_pandas_sort_then_groupby_tail(by):
     """``_last_of_groups`` against the pandas expression it replaces, on rows in any order with
