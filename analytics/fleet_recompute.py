@@ -7,22 +7,24 @@ the same payload and advice for many vehicles at once:
    component checks, service events, and the input keys), each answered as one row of binary
    column arrays that numpy takes as they arrive (:mod:`analytics.column_read`).
 2. **Drift** — every vehicle × corner × angle of the chunk as one NaN-padded stack (shape
-   ``(series, readings)``, km and deg): Sen's slopes by :func:`~analytics.core.drift.theil_sen_stack`,
-   the CUSUM step screen vectorised over the stack; the few series where the screen signals a step
-   are fitted by the core's own :func:`~analytics.core.drift.fit_drift` (exactly the per-vehicle
-   computation). Shrinkage toward the platform's pooled rate and the forecast crossings of the
-   tolerance band (grid + bisection, the arithmetic of :func:`~analytics.core.drift.forecast_crossing`)
-   are vectorised over all series.
+   ``(series, readings)``, km and deg; :mod:`analytics.core.stacks`): Sen's slopes by
+   :func:`~analytics.core.drift.theil_sen_stack`, the CUSUM step screen vectorised over the
+   stack; the few series where the screen signals a step are fitted by the core's own
+   :func:`~analytics.core.drift.fit_drift` (exactly the per-vehicle computation). Shrinkage
+   toward the platform's pooled rate and the forecast crossings of the tolerance band (grid +
+   bisection, the arithmetic of :func:`~analytics.core.drift.forecast_crossing`;
+   :mod:`analytics.core.crossing_search`) are vectorised over all series.
 3. **Wear** — ball-joint play lines and log-stiffness decay lines, stacked the same way; the
    stiffness criterion (cornering toe change of the outer rear wheel turning toe-out) is built
-   once per platform corner and evaluated over all vehicles' bands at once.
+   once per platform corner (:mod:`analytics.core.stiffness_sign`) and evaluated over all
+   vehicles' bands at once.
 4. **Compliance** — each platform's corner files are parsed once, and the load-case comparison
-   is computed once per distinct measured condition (cache keyed by the link conditions).
+   is computed once per distinct measured condition (:mod:`analytics.platform_cache`).
 5. **Advice** — :func:`analytics.core.advice.advise` per vehicle (pure Python, cheap).
-6. **Write** — ``AnalysisResult`` rows copied into a temporary table and inserted with
-   ``ON CONFLICT DO NOTHING RETURNING`` on the unique (vehicle, input key, model version): a
-   rerun, or a concurrent run, writes once; advice and drift-rate rows with ``COPY`` only for
-   the results this run inserted.
+6. **Write** (:mod:`analytics.result_write`) — ``AnalysisResult`` rows copied into a temporary
+   table and inserted with ``ON CONFLICT DO NOTHING RETURNING`` on the unique (vehicle, input
+   key, model version): a rerun, or a concurrent run, writes once; advice and drift-rate rows
+   with ``COPY`` only for the results this run inserted.
 
 Units: odometer km, angles deg, play mm, stiffness N/mm, slopes deg/km (payload deg/10 000 km).
 """
@@ -30,40 +32,43 @@ from __future__ import annotations
 
 import contextlib
 import datetime as dt
-import functools
 import gc
 import logging
 import math
-import re
 import time
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field
 from types import SimpleNamespace
 from zoneinfo import ZoneInfo
 
 import numpy as np
-import orjson
 import pandas as pd
 from django.db import connection, transaction
 from django.utils import timezone
 
 from analytics.column_read import read_columns, read_columns_many
 from analytics.core import advice as adv
-from analytics.core import corner_from_dict, mirror_corner
-from analytics.core.advice import MODEL_VERSION, SEVERITIES
-from analytics.core.condition import LinkCondition, measured_corner
-from analytics.core.cusum import CUSUM_H, CUSUM_K
+from analytics.core.advice import MODEL_VERSION
+from analytics.core.condition import LinkCondition
+from analytics.core.crossing_search import (
+    band_terms,
+    bisect_first,
+    block_bounds,
+    centre_half,
+    centre_half_of,
+    crossings,
+    scan_blocks,
+)
 from analytics.core.drift import (
     DEFAULT_CONFIDENCE,
     DRIFT_MODEL,
     FORECAST_GRID_POINTS,
-    MAD_TO_SD,
-    STEP_DIFF_CLIP,
-    STEP_WARMUP_READINGS,
     CrossingForecast,
     _z,
     fit_drift,
     theil_sen_stack,
 )
+from analytics.core.load_cases import CORNERS
+from analytics.core.stacks import LineFits, decreasing_runs, line_fits, runs, stack, step_screen
 from analytics.core.wear import (
     BAND_SAMPLES,
     NEED_TWO_PLAY_KM,
@@ -72,18 +77,15 @@ from analytics.core.wear import (
     forecast_play,
 )
 from inspections.models import Platform, Vehicle
-from inspections.models.catalogue import CORNER_AXLE, CORNER_SIDE, PARTS_BY_CODE
+from inspections.models.catalogue import CORNER_AXLE, PARTS_BY_CODE
 
 from . import analysis
 from .analysis import ANGLES, ASSUMPTIONS, HORIZON_KM, REPEATABILITY, advice_json
 from .models import (
-    AdviceItem,
-    AnalysisResult,
     PooledRate,
-    compact_payload,
-    drift_rate_values,
-    payload_flips,
 )
+from .platform_cache import PlatformCache, platform_cache
+from .result_write import write_results
 
 log = logging.getLogger(__name__)
 
@@ -91,8 +93,6 @@ __all__ = ["CHUNK_VEHICLES", "ChunkStats", "chunks", "fleet_recompute", "recompu
 
 #: Vehicles per chunk: one Celery task; ≈ 0.1 GiB of frames at 100 readings per vehicle.
 CHUNK_VEHICLES: int = 1000
-CORNERS = ("FL", "FR", "RL", "RR")
-BISECTIONS = 40  # = analytics.core.drift.CROSSING_BISECTIONS
 Z95 = _z(DEFAULT_CONFIDENCE)
 EPOCH = dt.date(1970, 1, 1)
 TOE_OUT_LABEL = StiffnessCriterion.toe_out(np.asarray).label
@@ -264,287 +264,6 @@ def _platform_stamp(platform_id: int) -> int:
     return int(p.timestamp()) if p else 0
 
 
-# --------------------------------------------------------------------------- stacks
-
-
-def _stack(group: np.ndarray, pos: np.ndarray, values: np.ndarray, groups: int, width: int):
-    out = np.full((groups, max(width, 1)), np.nan)
-    out[group, pos] = values
-    return out
-
-
-def _sorted_median(a: np.ndarray) -> np.ndarray:
-    """Row medians of a NaN-padded (m, n) array, as ``np.median`` of each row's values."""
-    s = np.sort(a, axis=1)
-    cnt = np.isfinite(a).sum(axis=1)
-    lo = np.clip((cnt - 1) // 2, 0, None)
-    hi = np.clip(cnt // 2, 0, None)
-    rows = np.arange(a.shape[0])
-    w = a.shape[1] - 1
-    med = 0.5 * (s[rows, np.minimum(lo, w)] + s[rows, np.minimum(hi, w)])
-    return np.where(cnt > 0, med, np.nan)
-
-
-def _robust_sd_rows(r: np.ndarray) -> np.ndarray:
-    med = _sorted_median(r)
-    return MAD_TO_SD * _sorted_median(np.abs(r - med[:, None]))
-
-
-@dataclass
-class LineFits:
-    """Theil–Sen fits of a stack of current-segment series, fields shape ``(m,)``."""
-
-    slope: np.ndarray
-    slope_se: np.ndarray
-    slope_low: np.ndarray
-    slope_high: np.ndarray
-    x_ref: np.ndarray
-    y_ref: np.ndarray
-    residual_sd: np.ndarray
-    sxx: np.ndarray
-    n: np.ndarray
-    ok: np.ndarray  # two or more distinct x
-
-
-def _line_fits(X: np.ndarray, Y: np.ndarray, msd: np.ndarray) -> LineFits:
-    """``fit_drift(find_steps=False)`` on already-segmented NaN-padded rows (km, y-units)."""
-    ts = theil_sen_stack(X, Y)
-    valid = np.isfinite(X)
-    n = valid.sum(axis=1)
-    xmax = np.nanmax(np.where(valid, X, -np.inf), axis=1)
-    xmin = np.nanmin(np.where(valid, X, np.inf), axis=1)
-    ok = (n >= 2) & (xmax > xmin)
-    resid = Y - (ts.intercept[:, None] + ts.slope[:, None] * X)
-    rsd = np.where(n > 2, _robust_sd_rows(resid), 0.0)
-    rsd = np.maximum(np.nan_to_num(rsd, nan=0.0), msd)
-    xbar = np.nansum(X, axis=1) / np.maximum(n, 1)
-    sxx = np.nansum((X - xbar[:, None]) ** 2, axis=1)
-    se = np.maximum((ts.slope_high - ts.slope_low) / (2.0 * Z95), 0.0)
-    return LineFits(ts.slope, se, ts.slope_low, ts.slope_high, ts.x_ref, ts.y_ref, rsd, sxx, n, ok)
-
-
-def _step_screen(X: np.ndarray, Y: np.ndarray, slope0: np.ndarray, msd: np.ndarray) -> np.ndarray:
-    """Whether the core's CUSUM step detector would signal on each row (bool, shape ``(m,)``).
-
-    Mirrors ``fit_drift``'s first pass: σ from detrended successive differences, standardised
-    recursive residuals from the segment start, a two-sided tabular CUSUM (k, h in σ units).
-    """
-    m, w = X.shape
-    n = np.isfinite(X).sum(axis=1)
-    eligible = n > STEP_WARMUP_READINGS
-    if not eligible.any() or w <= STEP_WARMUP_READINGS:
-        return np.zeros(m, dtype=bool)
-    d = np.diff(Y, axis=1) - slope0[:, None] * np.diff(X, axis=1)  # NaN past each row's end
-    d = d - _sorted_median(d)[:, None]
-    robust = _robust_sd_rows(d)
-    keep = np.isfinite(d) & ((robust[:, None] <= 0) | (np.abs(d) <= STEP_DIFF_CLIP * robust[:, None]))
-    cnt = keep.sum(axis=1)
-    ms = np.where(keep, d, 0.0) ** 2
-    sigma = np.sqrt(ms.sum(axis=1) / np.maximum(cnt, 1)) / math.sqrt(2.0)
-    sigma = np.maximum(np.where(n >= 3, sigma, 0.0), msd)
-    # recursive residuals: reading i predicted from readings 0..i-1 (i ≥ warm-up)
-    Xz, Yz = np.nan_to_num(X), np.nan_to_num(Y)
-    cols = np.arange(w)
-    targets = np.arange(STEP_WARMUP_READINGS, w)
-    mask = cols[None, :] < targets[:, None]  # (p, w)
-    L = targets.astype(float)
-    xs = np.where(mask[None], Xz[:, None, :], 0.0)  # (m, p, w)
-    ys = np.where(mask[None], Yz[:, None, :], 0.0)
-    xbar = xs.sum(axis=2) / L
-    ybar = ys.sum(axis=2) / L
-    dxm = np.where(mask[None], xs - xbar[..., None], 0.0)
-    sxx = np.sum(dxm**2, axis=2)
-    sxy = np.sum(dxm * (ys - ybar[..., None]), axis=2)
-    has = sxx > 0
-    safe = np.where(has, sxx, 1.0)
-    b = np.where(has, sxy / safe, 0.0)
-    xt, yt = Xz[:, targets], Yz[:, targets]
-    pred = ybar + b * (xt - xbar)
-    lever = np.where(has, (xt - xbar) ** 2 / safe, 0.0)
-    sd = sigma[:, None] * np.sqrt(1.0 + 1.0 / L[None, :] + lever)
-    z = (yt - pred) / np.where(sd > 0, sd, 1.0)
-    live = targets[None, :] < n[:, None]
-    cp = np.zeros(m)
-    cm = np.zeros(m)
-    alarm = np.zeros(m, dtype=bool)
-    for j in range(targets.size):
-        zj = np.where(live[:, j], z[:, j], 0.0)
-        cp = np.where(live[:, j], np.maximum(0.0, zj - CUSUM_K + cp), cp)
-        cm = np.where(live[:, j], np.maximum(0.0, -zj - CUSUM_K + cm), cm)
-        alarm |= live[:, j] & ((cp > CUSUM_H) | (cm > CUSUM_H))
-    return alarm & eligible & (sigma > 0)
-
-
-# --------------------------------------------------------------------------- crossings
-
-
-def _centre_half(x, slope, se, xref, yref, rsd, n):
-    """A trend's centre line and prediction half-width at ``x`` (as the core's ``LineTrend.band``);
-    the one place their operations are written (:func:`_block_bounds` relies on them)."""
-    return _centre_half_of(x, *_band_terms(slope, se, xref, yref, rsd, n))
-
-
-def _band_terms(slope, se, xref, yref, rsd, n) -> tuple:
-    """The parts of :func:`_centre_half` that do not depend on ``x``, for evaluating one set of
-    trends at many ``x`` (each part is computed exactly as :func:`_centre_half` computes it)."""
-    return slope, xref, yref, rsd**2 * (1.0 + 1.0 / n), se**2
-
-
-def _centre_half_of(x, slope, xref, yref, a2, s2):
-    d = x - xref
-    return yref + slope * d, Z95 * np.sqrt(a2 + s2 * d**2)
-
-
-def _band(x, slope, se, xref, yref, rsd, n):
-    centre, half = _centre_half(x, slope, se, xref, yref, rsd, n)
-    return centre - half, centre, centre + half
-
-
-#: Grid columns per block of the bounded first-crossing search (:func:`_first_flags`).
-FLAG_BLOCK = 32
-
-
-def _block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
-    """Bounds of a band's centre and half-width over blocks of :data:`FLAG_BLOCK` grid columns:
-    ``(starts, ends, c_min, c_max, h_min, h_max, unbounded)``, the bounds ``(m, blocks)``.
-
-    Computed with :func:`_centre_half` itself at each block's end points: every operation is
-    correctly rounded and monotonic in its argument (x − x_ref, a product with a fixed factor, a
-    sum, a square root), so the computed centre at the grid points is monotonic in x, the
-    computed half-width is monotonic on each side of x_ref (least at x_ref), and the bounds hold
-    for every grid point of the block, exactly. ``unbounded``: rows whose grid does not rise
-    (their bounds are not used)."""
-    m, g = grid.shape
-    starts = np.arange(0, g, FLAG_BLOCK)
-    ends = np.minimum(starts + FLAG_BLOCK, g) - 1
-    P = [p[:, None] for p in (slope, se, xref, yref, rsd, n)]
-    x0, x1 = grid[:, starts], grid[:, ends]
-    c0, h0 = _centre_half(x0, *P)
-    c1, h1 = _centre_half(x1, *P)
-    _, h_at_ref = _centre_half(xref[:, None], *P)
-    h_min = np.where((x0 <= xref[:, None]) & (x1 >= xref[:, None]), h_at_ref, np.minimum(h0, h1))
-    unbounded = ~np.all(grid[:, 1:] >= grid[:, :-1], axis=1)
-    return (starts, ends, np.minimum(c0, c1), np.maximum(c0, c1), h_min, np.maximum(h0, h1),
-            unbounded)
-
-
-def _scan_blocks(starts, ends, possible: list[np.ndarray], evaluate
-                 ) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Each criterion's ``(any flagged, first flagged index)`` per row, evaluating only blocks
-    where ``possible[c][row, block]``, in grid order, until each row's first flag is found.
-    ``evaluate(rows, j0, j1)``: the exact flags of columns ``j0:j1`` of those rows, one
-    ``(r, j1 − j0)`` array per criterion."""
-    m = possible[0].shape[0]
-    found = [np.zeros(m, dtype=bool) for _ in possible]
-    first = [np.zeros(m, dtype=np.int64) for _ in possible]
-    for k, (j0, j1) in enumerate(zip(starts, ends + 1, strict=True)):
-        need = np.zeros(m, dtype=bool)
-        for c, p in enumerate(possible):
-            need |= ~found[c] & p[:, k]
-        rows = np.nonzero(need)[0]
-        if not rows.size:
-            continue
-        for c, flags in enumerate(evaluate(rows, j0, j1)):
-            hit = flags.any(axis=1) & ~found[c][rows]
-            r = rows[hit]
-            first[c][r] = j0 + np.argmax(flags[hit], axis=1)
-            found[c][r] = True
-    return list(zip(found, first, strict=True))
-
-
-def _first_flags(grid: np.ndarray, P: tuple, lower: np.ndarray, upper: np.ndarray
-                 ) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Per criterion (band edge out, centre out, whole band out): whether any grid point of a row
-    is flagged and the first one that is — what ``flags.any(axis=1)`` and ``np.argmax(flags,
-    axis=1)`` give on the full ``(m, g)`` grid of :func:`_band`, without evaluating every point.
-
-    A block whose bounds (:func:`_block_bounds`) rule a criterion out has no flagged point for
-    it, exactly; the others are evaluated point by point (:func:`_scan_blocks`). The result is
-    the full grid's, element for element (tested against it on random and edge-case series).
-    ``P``: the six ``(m,)`` band parameters of :func:`_band`; ``lower``/``upper``: ``(m,)``
-    limits (±inf for none).
-    """
-    starts, ends, c_min, c_max, h_min, h_max, unbounded = _block_bounds(grid, *P)
-    up, low = upper[:, None], lower[:, None]
-    possible = [(c_max + h_max > up) | (c_min - h_max < low),   # some band edge out
-                (c_max > up) | (c_min < low),                   # the centre out
-                (c_max - h_min > up) | (c_min + h_min < low)]   # the whole band out
-    for flags in possible:
-        flags[unbounded] = True
-
-    def evaluate(rows, j0, j1):
-        lo, ce, hi = _band(grid[rows, j0:j1], *[p[rows, None] for p in P])
-        u, w = upper[rows, None], lower[rows, None]
-        return (hi > u) | (lo < w), (ce > u) | (ce < w), (lo > u) | (hi < w)
-
-    return _scan_blocks(starts, ends, possible, evaluate)
-
-
-def _bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]], make_test,
-                  cur: np.ndarray) -> list[np.ndarray]:
-    """Per row and criterion: the first x where the criterion holds — the first grid point
-    flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
-    ``forecast_crossing``); ``cur`` where it holds at the first grid point, NaN where never.
-
-    One bisection loop for every criterion and row at once; each element takes the same steps
-    as alone. ``grid``: ``(m, g)`` x values; ``firsts``: per criterion, ``(any flagged, first
-    flagged index)``, each ``(m,)`` (:func:`_first_flags`, :func:`_scan_blocks`);
-    ``make_test(rows, which)``: a function of ``x`` giving whether criterion ``which[j]`` holds
-    for row ``rows[j]`` at ``x[j]`` (all shape ``(r,)``), called once per halving (the rows'
-    parameters are gathered once, not at every halving). Returns one ``(m,)`` array per
-    criterion."""
-    outs, A, B, R, C = [], [], [], [], []
-    for c, (anyf, i) in enumerate(firsts):
-        out = np.full(grid.shape[0], np.nan)
-        at0 = anyf & (i == 0)
-        out[at0] = cur[at0]
-        rows = np.nonzero(anyf & (i > 0))[0]
-        outs.append(out)
-        A.append(grid[rows, i[rows] - 1])
-        B.append(grid[rows, i[rows]])
-        R.append(rows)
-        C.append(np.full(rows.size, c))
-    a, b, rows, which = (np.concatenate(v) for v in (A, B, R, C))
-    if rows.size:
-        test = make_test(rows, which)
-        for _ in range(BISECTIONS):
-            mid = 0.5 * (a + b)
-            hit = test(mid)
-            b = np.where(hit, mid, b)
-            a = np.where(hit, a, mid)
-        for c, out in enumerate(outs):
-            m = which == c
-            out[rows[m]] = b[m]
-    return outs
-
-
-def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
-    """Vectorised :func:`~analytics.core.drift.forecast_crossing` (all arguments shape ``(m,)``;
-    ``lower``/``upper`` ±inf for no limit). Returns ``(early, likely, late, side_upper)`` with
-    NaN for "not within the horizon"."""
-    P = (slope, se, xref, yref, rsd, n)
-
-    def make_test(rows, which):  # 0: band edge out, 1: centre out, 2: whole band out
-        terms = _band_terms(*[p[rows] for p in P])
-        up, low = upper[rows], lower[rows]
-        edge, centre = which == 0, which == 1
-
-        def test(x):
-            c, half = _centre_half_of(x, *terms)
-            lo, hi = c - half, c + half
-            return np.where(edge, (hi > up) | (lo < low),
-                            np.where(centre, (c > up) | (c < low), (lo > up) | (hi < low)))
-        return test
-
-    grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
-    early, likely, late = _bisect_first(grid, _first_flags(grid, P, lower, upper), make_test,
-                                        current)
-    e = np.where(np.isfinite(early), early, current)
-    blo, _, bhi = _band(e, *P)
-    side_upper = (bhi - upper) >= (lower - blo)
-    return early, likely, late, side_upper
-
-
 NO_RATE_NOTES = ("no usable daily-distance rate: dates come only from a fit over time",)
 
 
@@ -603,269 +322,6 @@ def _forecasts(early, likely, late, side, *, current_km, today, km_per_day, mode
     return out
 
 
-# --------------------------------------------------------------------------- platform caches
-
-
-class SignByStiffness:
-    """``function(k) < 0`` for stiffness arrays ``k`` (N/mm, any shape), computed once per platform
-    corner and link instead of once per sample.
-
-    The cornering toe change as a function of one link's stiffness is smooth, and monotonic over
-    the stiffnesses a bush has in service (the link's deflection is ``f/k`` and the wheel's small
-    rotation is linear in it, DESIGN.md §4); at stiffnesses near zero the rotations grow large and
-    it is not. That is checked, not assumed: the exact function is evaluated on ``CHECK_POINTS``
-    log-spaced stiffnesses up to ``K_HIGH``, and the widest range ``[k_mono, K_HIGH]`` ending
-    there on which it is strictly monotonic is kept. Inside it, the single zero ``k*`` (if any) is
-    found with ``scipy.optimize.brentq`` and ``k`` is below zero by which side of ``k*`` it lies
-    on. Values outside that range, or within ``ROOT_GUARD`` (relative) of ``k*``, are evaluated
-    exactly, so the answer is always the function's own sign.
-    """
-
-    K_LOW, K_HIGH = 1.0, 1.0e6  # N/mm: the range checked
-    CHECK_POINTS = 4097
-    ROOT_GUARD = 1e-9
-
-    def __init__(self, function):
-        from scipy.optimize import brentq
-
-        self.function = function
-        ks = np.geomspace(self.K_LOW, self.K_HIGH, self.CHECK_POINTS)
-        v = np.asarray(function(ks), dtype=float)
-        d = np.sign(np.diff(v))
-        self.root: float | None = None
-        self.k_mono = math.inf  # nothing is decided by the root unless the check passes
-        self.negative_above = False
-        self.constant_sign = False  # inside [k_mono, K_HIGH] with no zero: all below zero?
-        if np.all(np.isfinite(v)) and d[-1] != 0:
-            breaks = np.nonzero(d != d[-1])[0]
-            first = int(breaks[-1]) + 1 if breaks.size else 0
-            self.k_mono = float(ks[first])
-            vv, kk = v[first:], ks[first:]
-            self.negative_above = bool(d[-1] < 0)
-            neg = vv < 0
-            if neg.all() or not neg.any():
-                self.constant_sign = bool(neg.all())
-            else:
-                j = int(np.nonzero(neg[1:] != neg[:-1])[0][0])
-                self.root = float(brentq(lambda k: float(function(np.array([k]))[0]),
-                                         kk[j], kk[j + 1], xtol=1e-12, rtol=1e-14))
-
-    #: Relative margin by which :meth:`never_below_zero` keeps away from the range's ends and
-    #: the zero: far above the rounding of ``np.exp`` and of the bounds (a few 1e-16) and above
-    #: ``ROOT_GUARD``.
-    SAFE = 1e-6
-
-    def never_below_zero(self, k_min: np.ndarray, k_max: np.ndarray) -> np.ndarray:
-        """Whether no stiffness in ``[k_min, k_max]`` (N/mm, arrays of one shape) can be below
-        zero: the interval lies inside the checked monotonic range, on the side of the zero (or
-        in a range without one) where the function is not below zero, by :data:`SAFE`."""
-        k_min, k_max = np.asarray(k_min, dtype=float), np.asarray(k_max, dtype=float)
-        inside = (k_min >= self.k_mono * (1.0 + self.SAFE)) & (k_max <= self.K_HIGH * (1.0 - self.SAFE))
-        if self.root is None:
-            return inside & (not self.constant_sign)
-        if self.negative_above:  # below zero above the root
-            return inside & (k_max <= self.root * (1.0 - self.SAFE))
-        return inside & (k_min >= self.root * (1.0 + self.SAFE))
-
-    #: Margin (natural log of N/mm) by which a sample's exponent must keep clear of the zero's
-    #: guard zone for :meth:`band_fails` to decide it without computing it: far above the
-    #: rounding of ``np.exp``/``math.log`` and of the exponents (≈ 1e-15 for the stiffnesses of
-    #: bushes).
-    LOG_MARGIN = 1e-12
-
-    def band_fails(self, mid: np.ndarray, half: np.ndarray, u: np.ndarray
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Whether any, the centre and every sample of stiffness bands is below zero: what
-        ``self(np.exp(mid[..., None] + u * half[..., None]))`` gives, reduced over its last axis
-        as ``any``, ``[..., len(u) // 2]`` and ``all``.
-
-        ``mid``, ``half``: log stiffness (ln N/mm) centre and half-width, arrays of one shape;
-        ``u``: the sample positions, ascending from -1 to 1 with 0 in the middle (as
-        ``np.linspace(-1, 1, odd)``). Three samples decide a band — its ends ``exp(mid ∓ half)``
-        and centre ``exp(mid)``, the very values the full evaluation computes there — where every
-        sample lies inside the range decided by the zero (:meth:`__call__`'s rule) and none lies
-        within its guard zone, where the rule is a threshold: the samples rise with ``u``, so
-        "any" and "every" are the ends' answers. That is checked, not assumed (in ``u``, with
-        :data:`LOG_MARGIN`); the other bands are evaluated sample by sample, exactly as before.
-        """
-        mid, half = np.asarray(mid, dtype=float), np.asarray(half, dtype=float)
-        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-            k_lo, k_c, k_hi = np.exp(mid - half), np.exp(mid), np.exp(mid + half)
-            fast = (half >= 0) & np.isfinite(k_lo) & np.isfinite(k_hi) \
-                & (k_lo >= self.k_mono * (1.0 + self.SAFE)) \
-                & (k_hi <= self.K_HIGH * (1.0 - self.SAFE))
-            if self.root is None:
-                f_lo = f_c = f_hi = np.full(mid.shape, self.constant_sign)
-            else:
-                g1 = math.log(self.root * (1.0 - self.ROOT_GUARD)) - self.LOG_MARGIN
-                g2 = math.log(self.root * (1.0 + self.ROOT_GUARD)) + self.LOG_MARGIN
-                # sample i is at u_i = -1 + 2i/(s-1); a sample's exponent in [g1, g2] means
-                # u_i in [(g1 - mid)/half, (g2 - mid)/half] (widened: conservative)
-                steps = (u.size - 1) / 2.0
-                a = ((g1 - mid) / half + 1.0) * steps - 1e-6
-                b = ((g2 - mid) / half + 1.0) * steps + 1e-6
-                i_lo = np.maximum(np.ceil(a), 0.0)
-                i_hi = np.minimum(np.floor(b), u.size - 1.0)
-                guard = np.where(half > 0, i_lo <= i_hi, (mid >= g1) & (mid <= g2))
-                fast &= ~guard
-                if self.negative_above:
-                    f_lo, f_c, f_hi = k_lo > self.root, k_c > self.root, k_hi > self.root
-                else:
-                    f_lo, f_c, f_hi = k_lo < self.root, k_c < self.root, k_hi < self.root
-        # the rule is monotonic in k: "any" is the end most likely to fail, "every" the other
-        if self.root is not None and not self.negative_above:
-            f_any, f_all = f_lo, f_hi
-        else:
-            f_any, f_all = f_hi, f_lo
-        f_any, f_c, f_all = (np.where(fast, x, False) for x in (f_any, f_c, f_all))
-        slow = ~fast
-        if slow.any():
-            with np.errstate(over="ignore", invalid="ignore"):  # non-finite bands, as before
-                k = np.exp(mid[slow][:, None] + u * half[slow][:, None])
-            f = self(k)
-            f_any[slow], f_c[slow], f_all[slow] = f.any(axis=1), f[:, u.size // 2], f.all(axis=1)
-        return f_any, f_c, f_all
-
-    def __call__(self, k: np.ndarray) -> np.ndarray:
-        k = np.asarray(k, dtype=float)
-        inside = (k >= self.k_mono) & (k <= self.K_HIGH)
-        if self.root is None:
-            out = np.full(k.shape, self.constant_sign)
-            exact = ~inside
-        else:
-            out = (k > self.root) if self.negative_above else (k < self.root)
-            exact = ~inside | (np.abs(k / self.root - 1.0) < self.ROOT_GUARD)
-        if exact.any():
-            out[exact] = np.asarray(self.function(k[exact]), dtype=float) < 0.0
-        return out
-
-
-class PlatformCache:
-    """What is the same for every vehicle of a platform: corners, specs, limits, pooled rates,
-    stiffness → toe criteria, and compliance results per distinct measured condition."""
-
-    def __init__(self, platform: Platform):
-        self.platform = platform
-        self.data_like = SimpleNamespace(vehicle=SimpleNamespace(platform=platform))
-        self.pooled = {(p.corner, p.angle): p for p in platform.pooled_rates.all()}
-        self.specs = {(s.axle, s.quantity): s for s in platform.specs.all()}
-        self.limits = {lim.part: lim for lim in platform.limits.all()}
-        geo = {c.axle: c.geometry for c in platform.corners.all()}
-        self.new = {}
-        for pos in CORNERS:
-            g = geo.get(CORNER_AXLE[pos])
-            if g is None:
-                continue
-            left = corner_from_dict(g)
-            self.new[pos] = left if CORNER_SIDE[pos] == "left" else mirror_corner(left)
-        self._toe_fn: dict = {}
-        self._toe_sign: dict = {}
-        self._compliance: dict = {}
-
-    def toe_fn(self, pos: str, link: str):
-        key = (pos, link)
-        if key not in self._toe_fn:
-            self._toe_fn[key] = analysis._toe_change_of_stiffness(self.data_like, self.new[pos],
-                                                                 pos, link)
-        return self._toe_fn[key]
-
-    def toe_out_sign(self, pos: str, link: str) -> SignByStiffness:
-        """``toe change < 0`` as a function of one link's stiffness (see :class:`SignByStiffness`)."""
-        key = (pos, link)
-        if key not in self._toe_sign:
-            self._toe_sign[key] = SignByStiffness(self.toe_fn(pos, link))
-        return self._toe_sign[key]
-
-    def compliance(self, pos: str, conds: tuple):
-        """(payload entry, verdicts, conditions_used) for one position and condition key."""
-        hit = self._compliance.get((pos, conds))
-        if hit is None:
-            self.prepare_compliance(pos, [conds])
-            hit = self._compliance[(pos, conds)]
-        return hit
-
-    def prepare_compliance(self, pos: str, conds_list) -> None:
-        """Work out the compliance of every condition key of ``conds_list`` not cached yet, all
-        states of the position together (:func:`analytics.analysis.compliance_many`)."""
-        todo = [c for c in dict.fromkeys(conds_list) if (pos, c) not in self._compliance]
-        if not todo:
-            return
-        new = self.new[pos]
-        cds = [{name: LinkCondition(*vals) for name, vals in conds} for conds in todo]
-        measured = [measured_corner(new, cd) if cd else new for cd in cds]
-        outs = analysis.compliance_many(self.platform, pos, new, measured)
-        for conds, cd, (entry, verdicts) in zip(todo, cds, outs, strict=True):
-            self._compliance[(pos, conds)] = (entry, tuple(verdicts),
-                                              {k: asdict(v) for k, v in cd.items()})
-
-
-_CACHES: dict[int, tuple[str, PlatformCache]] = {}
-
-
-@functools.cache
-def _fingerprint_sql() -> str:
-    from inspections.models import AlignmentSpec, ComponentLimit, PlatformCorner
-
-    related = ", ".join(
-        f"(SELECT string_agg(row_to_json(x)::text, ',' ORDER BY x.id) FROM {m._meta.db_table} x "
-        f"WHERE x.platform_id = %(p)s)"
-        for m in (AlignmentSpec, ComponentLimit, PlatformCorner, PooledRate))
-    return (f"SELECT md5(concat_ws('|', (SELECT row_to_json(x)::text FROM "
-            f"{Platform._meta.db_table} x WHERE x.id = %(p)s), {related}))")
-
-
-def _fingerprint(platform_id: int) -> str:
-    """Everything the caches depend on — the platform's row and all rows of its specs, limits,
-    corner files and pooled rates — as one digest computed by the database in one query (a
-    long-lived worker notices an edited spec or a refreshed pooled rate)."""
-    with connection.cursor() as cur:
-        cur.execute(_fingerprint_sql(), {"p": platform_id})
-        return cur.fetchone()[0]
-
-
-def platform_cache(platform_id: int) -> PlatformCache:
-    """A process-local cache of the platform, rebuilt when anything it depends on changed."""
-    key = _fingerprint(platform_id)
-    hit = _CACHES.get(platform_id)
-    if hit is None or hit[0] != key:
-        hit = (key, PlatformCache(Platform.objects.get(pk=platform_id)))
-        _CACHES[platform_id] = hit
-    return hit[1]
-
-
-#: Time a starting worker process spends warming caches at most (s): Celery gives a starting
-#: process a few seconds to report itself up; platforms past the budget warm on first use.
-WARM_BUDGET_S: float = 2.0
-
-
-def warm_caches(budget_s: float = WARM_BUDGET_S) -> int:
-    """Build the platforms' caches and their rear corners' stiffness → toe-out criteria in this
-    process (a worker process calls it when it starts, so its first job on a platform does not
-    pay for them: ≈ 40 ms a platform), for at most ``budget_s`` seconds. Returns the platforms
-    warmed; a database error is logged, not raised."""
-    from django.db import DatabaseError
-
-    if connection.vendor != "postgresql":
-        return 0
-    n = 0
-    t0 = time.monotonic()
-    try:
-        for pid in Platform.objects.order_by("pk").values_list("pk", flat=True):
-            if time.monotonic() - t0 > budget_s:
-                break
-            cache = platform_cache(pid)
-            for pos in ("RL", "RR"):
-                for link in cache.new[pos].link_names if pos in cache.new else ():
-                    cache.toe_out_sign(pos, link)
-            n += 1
-    except DatabaseError as exc:
-        log.warning("platform caches not warmed: %s", exc)
-    finally:
-        if not connection.in_atomic_block:
-            connection.close()  # a starting worker process: its first job opens its own
-    return n
-
-
 # --------------------------------------------------------------------------- the chunk
 
 
@@ -918,26 +374,6 @@ def _flags_between(group_keys, times, adjust_group, adjust_times) -> np.ndarray:
     return flags
 
 
-def _runs(keys: np.ndarray):
-    """Runs of equal values of a grouped (sorted) key array of length n: whether each element
-    starts a run (n,), each element's run number (n,), each run's start and size (runs,)."""
-    first = np.r_[True, keys[1:] != keys[:-1]] if keys.size else np.zeros(0, dtype=bool)
-    gid = np.cumsum(first) - 1
-    starts = np.flatnonzero(first)
-    sizes = np.diff(np.r_[starts, keys.size])
-    return first, gid, starts, sizes
-
-
-def _decreasing_runs(keys: np.ndarray, x: np.ndarray) -> dict:
-    """``{key: whether x ever decreases within its run}`` of a grouped key array."""
-    first, gid, starts, _ = _runs(keys)
-    down = np.zeros(keys.size, dtype=bool)
-    down[1:] = (np.diff(x) < 0) & ~first[1:]
-    any_down = np.zeros(starts.size, dtype=bool)
-    any_down[gid[down]] = True
-    return dict(zip(keys[starts].tolist(), any_down.tolist(), strict=True))
-
-
 def _last_of_groups(frame: pd.DataFrame, by: tuple[str, ...] = ("vehicle_id", "corner", "part")
                     ) -> pd.DataFrame:
     """Each group's last row in (vehicle, time) order, in that order: what
@@ -980,7 +416,7 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
     # an adjustment belongs to every corner of its vehicle: compare on the vehicle
     flags = _flags_between(found["vehicle_id"].to_numpy(), found["t"].to_numpy(),
                            adj["vehicle_id"].to_numpy(), adj["t"].to_numpy())
-    first, gid, starts, sizes = _runs(vc)
+    first, gid, starts, sizes = runs(vc)
     flags[first] = False
     inputs = (vc, found["t"].to_numpy(), found["odometer_km"].to_numpy(),
               *(found[f"{angle}_deg"].to_numpy() for angle in ANGLES), flags)
@@ -998,9 +434,9 @@ def _drift_stacks(found: pd.DataFrame, adj: pd.DataFrame, day0: dict | None = No
     if day0 is not None and b.keys.size:
         cur = found[b.now]
         d0 = cur["vehicle_id"].map(day0).to_numpy()
-        XD = _stack(b.g, b.pos, (cur["day"].to_numpy() - d0).astype(float), b.keys.size, b.W)
+        XD = stack(b.g, b.pos, (cur["day"].to_numpy() - d0).astype(float), b.keys.size, b.W)
         for angle in ANGLES:
-            out["day_fits"][angle] = _line_fits(XD, b.Y[angle], np.full(b.keys.size,
+            out["day_fits"][angle] = line_fits(XD, b.Y[angle], np.full(b.keys.size,
                                                                         REPEATABILITY[angle]))
     return out
 
@@ -1014,7 +450,7 @@ def _segment_fits(found: pd.DataFrame, vc, flags, gid, starts, sizes) -> dict:
     last = seg[starts + sizes - 1][gid]
     ntot = sizes[gid]
     keep = ntot >= 2
-    x_dec = _decreasing_runs(vc[keep], found["odometer_km"].to_numpy()[keep])
+    x_dec = decreasing_runs(vc[keep], found["odometer_km"].to_numpy()[keep])
     now = (seg == last)[keep]
     base = dict(idx=idx, seg=seg, last=last, ntot=ntot, keep=keep, now=now, x_dec=x_dec,
                 keys=np.zeros(0, dtype=np.int64), seg_start=np.zeros(0, dtype=np.int64),
@@ -1023,18 +459,18 @@ def _segment_fits(found: pd.DataFrame, vc, flags, gid, starts, sizes) -> dict:
     if not cvc.size:
         return base
     cur = found[keep][now]
-    _, g, cstarts, _ = _runs(cvc)
+    _, g, cstarts, _ = runs(cvc)
     keys = cvc[cstarts]
     seg_start = cidx[cstarts]  # a group's index grows with time: its first is its minimum
     pos = cidx - seg_start[g]
     W = int(pos.max()) + 1
-    X = _stack(g, pos, cur["odometer_km"].to_numpy(float), len(keys), W)
+    X = stack(g, pos, cur["odometer_km"].to_numpy(float), len(keys), W)
     fits, alarms, Y = {}, {}, {}
     for angle in ANGLES:
-        Y[angle] = _stack(g, pos, cur[f"{angle}_deg"].to_numpy(float), len(keys), W)
+        Y[angle] = stack(g, pos, cur[f"{angle}_deg"].to_numpy(float), len(keys), W)
         msd = np.full(len(keys), REPEATABILITY[angle])
-        fits[angle] = f = _line_fits(X, Y[angle], msd)
-        alarms[angle] = _step_screen(X, Y[angle], f.slope, msd) & f.ok
+        fits[angle] = f = line_fits(X, Y[angle], msd)
+        alarms[angle] = step_screen(X, Y[angle], f.slope, msd) & f.ok
     base.update(keys=keys, seg_start=seg_start, fits=fits, alarms=alarms, g=g, pos=pos, W=W, Y=Y)
     return base
 
@@ -1096,7 +532,7 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
     bad: set[int] = set()  # vehicles sent to the per-vehicle path
     if len(sess):
         g = np.searchsorted(ids_arr, sess["vehicle_id"].to_numpy())
-        _, gid, starts, sizes = _runs(g)
+        _, gid, starts, sizes = runs(g)
         pos = np.arange(g.size) - starts[gid]
         cnt = np.zeros(G, dtype=np.int64)
         cnt[g[starts]] = sizes
@@ -1104,11 +540,11 @@ def analyse_chunk(platform_id: int, vehicle_ids: list[int], *, only: set[int] | 
         day = sess["day"].to_numpy()
         odo_km = sess["odometer_km"].to_numpy(float)
         today_day = np.array([(today_of[v] - EPOCH).days for v in ids])
-        D = _stack(g, pos, (day - today_day[g]).astype(float), G, W)
-        ts = theil_sen_stack(D, _stack(g, pos, odo_km, G, W))
+        D = stack(g, pos, (day - today_day[g]).astype(float), G, W)
+        ts = theil_sen_stack(D, stack(g, pos, odo_km, G, W))
         # the core refuses an odometer going backwards in time or one distinct day
         order = np.lexsort((day, g))  # the stable sort by vehicle, day
-        back = _decreasing_runs(g[order], odo_km[order])
+        back = decreasing_runs(g[order], odo_km[order])
         span = int(day.max() - day.min()) + 1
         nd = np.bincount(np.unique(g * span + (day - day.min())) // span, minlength=G)
         for gi, vid in enumerate(ids):
@@ -1413,18 +849,18 @@ def _segment_stack(rows: pd.DataFrame, rep: pd.DataFrame, value: np.ndarray):
         flags = _flags_between(gk, t, rep["gk"].to_numpy(), rep["t"].to_numpy())
     else:
         flags = np.zeros(len(rows), dtype=bool)
-    first, gid, starts, sizes = _runs(gk)
+    first, gid, starts, sizes = runs(gk)
     flags[first] = False
     cs = np.cumsum(flags)
     seg = cs - cs[starts][gid]
     now = seg == seg[starts + sizes - 1][gid]  # the group's last segment
     idx = (np.arange(gk.size) - starts[gid])[now]
-    _, g, cstarts, _ = _runs(gk[now])
+    _, g, cstarts, _ = runs(gk[now])
     keys = gk[now][cstarts]
     pos = idx - idx[cstarts][g]
     W = int(pos.max()) + 1 if pos.size else 1
-    X = _stack(g, pos, rows["odometer_km"].to_numpy(float)[now], len(keys), W)
-    Y = _stack(g, pos, np.asarray(value, dtype=float)[now], len(keys), W)
+    X = stack(g, pos, rows["odometer_km"].to_numpy(float)[now], len(keys), W)
+    Y = stack(g, pos, np.asarray(value, dtype=float)[now], len(keys), W)
     return keys, X, Y
 
 
@@ -1447,7 +883,7 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
              & ev["corner"].isin(cix).to_numpy()]
     rep = rep.assign(gk=(rep["vehicle_id"].to_numpy() * 4 + rep["corner"].map(cix).to_numpy()) * 64
                      + rep["part"].map(part_ix).to_numpy())
-    _, gid, _, sizes = _runs(ck["gk"].to_numpy())
+    _, gid, _, sizes = runs(ck["gk"].to_numpy())
     play_n = np.bincount(gid, weights=ck["play_mm"].notna().to_numpy())[gid]
     defl_n = np.bincount(gid, weights=ck["deflection_mm"].notna().to_numpy())[gid]
     keep = sizes[gid] >= 2
@@ -1487,8 +923,8 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     fc_json_of = {}  # the JSON of forecasts made here (the core's own get theirs below)
     if len(play_rows):
         keys, X, Y = _segment_stack(play_rows, rep, play_rows["play_mm"].to_numpy(float))
-        f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["play_repeatability_mm"]))
-        xdec = _decreasing_runs(play_rows["gk"].to_numpy(), play_rows["odometer_km"].to_numpy())
+        f = line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["play_repeatability_mm"]))
+        xdec = decreasing_runs(play_rows["gk"].to_numpy(), play_rows["odometer_km"].to_numpy())
         good = [i for i, k in enumerate(keys) if f.ok[i] and not xdec.get(k, False)]
         gi = np.array(good, dtype=int)
         if gi.size:
@@ -1542,8 +978,8 @@ def _wear_chunk(ids, ck, ev, cache: PlatformCache, odo, today_of, kmpd, st: Chun
     crit = bu[bu["gk"].map(applies).to_numpy(dtype=bool)] if len(bu) else bu
     if len(crit):
         keys, X, Y = _segment_stack(crit, rep, np.log(crit["k"].to_numpy(float)))
-        f = _line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["stiffness_relative_sd"]))
-        xdec = _decreasing_runs(crit["gk"].to_numpy(), crit["odometer_km"].to_numpy())
+        f = line_fits(X, Y, np.full(len(keys), ASSUMPTIONS["stiffness_relative_sd"]))
+        xdec = decreasing_runs(crit["gk"].to_numpy(), crit["odometer_km"].to_numpy())
         by_fn: dict = {}
         for i, k in enumerate(keys):
             vid, corner, code, entry, _ = pending[k]
@@ -1592,31 +1028,31 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
 
     grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
     # a block can fail only where some sample's stiffness can be below zero: the samples lie
-    # within exp(centre ± half-width), bounded per block (see _block_bounds)
-    starts, ends, c_min, c_max, _h_min, h_max, unbounded = _block_bounds(
+    # within exp(centre ± half-width), bounded per block (see block_bounds)
+    starts, ends, c_min, c_max, _h_min, h_max, unbounded = block_bounds(
         grid, slope, se, xref, yref, rsd, n)
     with np.errstate(over="ignore"):
         can_fail = ~below_zero.never_below_zero(np.exp(c_min - h_max), np.exp(c_max + h_max))
     can_fail[unbounded] = True
 
     def evaluate(rows, j0, j1):
-        mid, half = _centre_half(grid[rows, j0:j1],
+        mid, half = centre_half(grid[rows, j0:j1],
                                  *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
         return below_zero.band_fails(mid, half, u)
 
     def make_test(rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails
-        terms = _band_terms(*[p[rows] for p in (slope, se, xref, yref, rsd, n)])
+        terms = band_terms(*[p[rows] for p in (slope, se, xref, yref, rsd, n)])
         some, at_centre = which == 0, which == 1
 
         def test(x):  # few rows, 40 times: the samples themselves (band_fails pays off on blocks)
-            mid, half = _centre_half_of(x, *terms)
+            mid, half = centre_half_of(x, *terms)
             f = below_zero(np.exp(mid[:, None] + u * half[:, None]))
             return np.where(some, f.any(axis=1),
                             np.where(at_centre, f[:, u.size // 2], f.all(axis=1)))
         return test
 
-    firsts = _scan_blocks(starts, ends, [can_fail] * 3, evaluate)
-    early, likely, late = _bisect_first(grid, firsts, make_test, cur)
+    firsts = scan_blocks(starts, ends, [can_fail] * 3, evaluate)
+    early, likely, late = bisect_first(grid, firsts, make_test, cur)
     return early, likely, late
 
 
@@ -1644,167 +1080,6 @@ def _findings_chunk(latest: pd.DataFrame, ev: pd.DataFrame) -> dict[int, list]:
             note=f"{text}; verdict {verdict.replace('_', ' ')}", checked_on=_day(day),
             odometer_km=float(km)))
     return out
-
-
-# --------------------------------------------------------------------------- writing
-
-
-def _json_bytes(obj) -> bytes:
-    """UTF-8 JSON of a payload part: ``orjson`` (several times faster than ``json.dumps``; the
-    same shortest float representations; numpy scalars as numbers)."""
-    return orjson.dumps(obj, option=orjson.OPT_SERIALIZE_NUMPY)
-
-
-def _json(obj) -> str:
-    """:func:`_json_bytes` as text."""
-    return _json_bytes(obj).decode()
-
-
-def _payload_json(payload: dict, advice: list[bytes]) -> bytes:
-    """The payload's JSON (UTF-8) with its advice list made of the items' JSON already written."""
-    return _json_bytes({**payload, "advice": [orjson.Fragment(b) for b in advice]})
-
-
-def _copy_escape(value: bytes) -> bytes:
-    """A value for COPY's text format (PostgreSQL documentation, COPY, "Text Format"): backslash,
-    newline, carriage return and tab written as backslash sequences."""
-    return value.replace(b"\\", b"\\\\").replace(b"\n", b"\\n").replace(b"\r", b"\\r") \
-        .replace(b"\t", b"\\t")
-
-
-def _stage_line(vehicle_id: int, input_key: str, payload_json: bytes, flips: bool) -> bytes:
-    """One row of the results' staging table in COPY's text format, the payload as written by
-    :func:`_payload_json`: JSON text has no raw newline, carriage return or tab (RFC 8259 escapes
-    them inside strings, and orjson writes no whitespace between tokens), so only its
-    backslashes are doubled — the same bytes psycopg's ``write_row`` would send, without
-    decoding and re-encoding 16 KB per vehicle."""
-    return b"%d\t%s\t%s\t%s\n" % (vehicle_id, _copy_escape(input_key.encode()),
-                                  payload_json.replace(b"\\", b"\\\\"), b"t" if flips else b"f")
-
-
-def _copy_rows(cur, table: str, columns: tuple[str, ...], rows) -> None:
-    """``COPY table (columns) FROM STDIN`` of an iterable of tuples (psycopg adapts the values)."""
-    with cur.copy(f"COPY {table} ({', '.join(columns)}) FROM STDIN") as cp:
-        for row in rows:
-            cp.write_row(row)
-
-
-_lz4: bool | None = None  # whether the server has lz4, asked once per process
-
-
-def _copy_staged(cur, stage: str, columns_sql: str, columns: tuple[str, ...], rows=(),
-                 lines=None) -> None:
-    """A temporary table ``stage`` filled with ``COPY`` from ``rows`` (tuples psycopg adapts) or
-    ``lines`` (rows in COPY's text format, bytes each). Its JSON columns (``json``/``jsonb``)
-    compress with lz4 where the server has it (see migrations 0007, 0009): staged values move
-    into the stored tables as they were compressed.
-
-    The table is made once per database session (``CREATE TEMP TABLE IF NOT EXISTS … ON COMMIT
-    DELETE ROWS``) and emptied before use (rows staged earlier in an enclosing transaction),
-    in one round trip: creating and dropping it for every write cost ≈ 3–4 ms of a
-    single-vehicle job and left dead rows in the system catalogues each time (on a server
-    without autovacuum they pile up). Workers keep their connection between jobs, so the
-    table is reused; a rolled-back creation is simply made again."""
-    global _lz4
-    if _lz4 is None:
-        cur.execute("SELECT 1 FROM pg_settings WHERE name = 'default_toast_compression' "
-                    "AND 'lz4' = ANY(enumvals)")
-        _lz4 = cur.fetchone() is not None
-    if _lz4:
-        columns_sql = re.sub(r" (jsonb|json)\b", r" \1 COMPRESSION lz4", columns_sql)
-    # no parameters: both statements go in one message (the simple query protocol)
-    cur.execute(f"CREATE TEMP TABLE IF NOT EXISTS {stage} ({columns_sql}) ON COMMIT DELETE ROWS; "
-                f"DELETE FROM {stage}")
-    if lines is None:
-        _copy_rows(cur, stage, columns, rows)
-        return
-    with cur.copy(f"COPY {stage} ({', '.join(columns)}) FROM STDIN") as cp:
-        for line in lines:
-            cp.write(line)
-
-
-RESULT_INSERT_SQL = """INSERT INTO "analytics_analysisresult"
-       (vehicle_id, input_key, model_version, computed_at, payload, flips_to_toe_out)
-SELECT vehicle_id, input_key, %s, now(), payload, flips FROM fleet_result_stage ORDER BY vehicle_id
-ON CONFLICT (vehicle_id, input_key, model_version) DO NOTHING
-RETURNING id, vehicle_id"""
-
-
-def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
-    """:func:`analytics.models.outcomes_store` with ``COPY``: staged, then inserted where new."""
-    if not outcomes:
-        return
-    _copy_staged(cur, "fleet_outcome_stage", "key text, entry jsonb", ("key", "entry"),
-                 ((k, _json(e)) for k, e in sorted(outcomes.items())))
-    cur.execute('INSERT INTO "analytics_complianceoutcome" (key, entry, created_at) '
-                "SELECT key, entry, now() FROM fleet_outcome_stage ORDER BY key "
-                "ON CONFLICT (key) DO NOTHING")
-
-
-def _write(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
-           owner_of: dict[int, int | None]) -> int:
-    """Store results (once per input key) and their advice; returns results inserted.
-    ``owner_of``: each vehicle's owner id (None: no owner, no owner report).
-
-    PostgreSQL's bulk path: the results are copied into a temporary table and inserted from it
-    with ``ON CONFLICT DO NOTHING RETURNING`` — the rows returned are the ones this run stored
-    (a concurrent or earlier run that stored the same inputs wrote its advice with them in its
-    own transaction). Advice and drift-rate rows of those results are written with ``COPY``.
-    """
-    if not results:
-        return 0
-    from .services import _advice_key, owner_report_on_commit
-
-    vids = sorted(results)
-    previous: dict[int, set] = {}
-    owners = [v for v in vids if owner_of.get(v) is not None]
-    for v, k in AdviceItem.objects.filter(vehicle_id__in=owners).values_list("vehicle_id", "key"):
-        previous.setdefault(v, set()).add(k)
-    stored: dict[int, dict] = {}
-    outcomes: dict[str, dict] = {}
-    memo: dict[int, str] = {}  # the cached compliance entries are shared between payloads
-    # each advice item's JSON is written twice (in the payload and as its row's body): made once
-    bodies: dict[int, list[bytes]] = {}
-    for v in vids:
-        stored[v], used = compact_payload(results[v][0], memo)
-        outcomes.update(used)
-        bodies[v] = [_json_bytes(a) for a in results[v][0]["advice"]]
-    with transaction.atomic(), connection.cursor() as dj:
-        cur = dj.cursor  # the psycopg cursor
-        _store_outcomes(cur, outcomes)
-        _copy_staged(cur, "fleet_result_stage",
-                     "vehicle_id bigint, input_key text, payload json, flips boolean",
-                     ("vehicle_id", "input_key", "payload", "flips"),
-                     lines=(_stage_line(v, keys[v], _payload_json(stored[v], bodies[v]),
-                                        payload_flips(results[v][0])) for v in vids))
-        cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
-        mine = {int(v): int(rid) for rid, v in cur.fetchall()}
-        if not mine:
-            return 0
-        mine_ids = sorted(mine)
-        cur.execute("DELETE FROM analytics_adviceitem WHERE vehicle_id = ANY(%s) "
-                    "AND NOT (result_id = ANY(%s))", [mine_ids, list(mine.values())])
-        _copy_rows(cur, "analytics_adviceitem", (
-            "result_id", "vehicle_id", "key", "kind", "severity", "urgency_rank", "what",
-            "due_date", "due_km", "corner", "defect_category", "body"), (
-            (mine[v], v, _advice_key(a), a["kind"], a["severity"],
-             SEVERITIES.index(a["severity"]), a["what"][:300],
-             dt.date.fromisoformat(a["due_date"]) if a["due_date"] else None,
-             int(a["due_km"]) if a["due_km"] is not None else None,
-             a["corner"] or "", a["defect_category"] or "", body.decode())
-            for v in mine_ids for a, body in zip(results[v][0]["advice"], bodies[v], strict=True)))
-        cur.execute("DELETE FROM analytics_driftrate WHERE vehicle_id = ANY(%s)", [mine_ids])
-        _copy_rows(cur, "analytics_driftrate", (
-            "vehicle_id", "result_id", "platform_id", "corner", "angle", "slope_deg_per_10k"), (
-            (v, mine[v], platform_id, corner, angle, slope)
-            for v in mine_ids for corner, angle, slope in drift_rate_values(results[v][0])))
-        for v in owners:
-            if v in mine:
-                r = AnalysisResult(pk=mine[v], vehicle=Vehicle(pk=v, owner_id=owner_of[v]),
-                                   input_key=keys[v],
-                                   model_version=MODEL_VERSION, payload=stored[v])
-                owner_report_on_commit(result=r, previous_keys=previous.get(v, set()))
-    return len(mine)
 
 
 def recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool = False) -> ChunkStats:
@@ -1858,7 +1133,7 @@ def _recompute_chunk(platform_id: int, vehicle_ids: list[int], *, pool: bool) ->
                             drift_reuse=pooled.get("stacks")) if todo else {}
     t2 = time.perf_counter()
     owner_of = dict(_fetch(OWNERS_SQL, [list(results)]))
-    st.written = _write(platform_id, keys, results, owner_of)
+    st.written = write_results(platform_id, keys, results, owner_of)
     st.seconds["write"] = time.perf_counter() - t2
     st.seconds["total"] = time.perf_counter() - t0
     return st

@@ -18,7 +18,7 @@ def _warm(**_kwargs) -> None:
     collections walk only what jobs allocate."""
     import gc
 
-    from analytics.fleet_recompute import warm_caches
+    from analytics.platform_cache import warm_caches
 
     warm_caches()
     gc.freeze()

@@ -10,11 +10,12 @@ import numpy as np
 import pytest
 
 from analytics import fleet_recompute as fr
+from analytics.core import crossing_search, stacks, stiffness_sign
 from analytics.core.drift import FORECAST_GRID_POINTS, LineTrend, forecast_crossing
 
 
 def _full_grid(grid, P, lower, upper):
-    lo, c, hi = fr._band(grid, *[p[:, None] for p in P])
+    lo, c, hi = crossing_search.band(grid, *[p[:, None] for p in P])
     up, low = upper[:, None], lower[:, None]
     flags = [(hi > up) | (lo < low), (c > up) | (c < low), (lo > up) | (hi < low)]
     return [(f.any(axis=1), np.argmax(f, axis=1)) for f in flags]
@@ -67,7 +68,7 @@ def test_the_bounded_search_finds_the_full_grid_s_first_flags_exactly(seed):
     for horizon in (80_000.0, 250_000.0):
         grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
         want = _full_grid(grid, P, lower, upper)
-        got = fr._first_flags(grid, P, lower, upper)
+        got = crossing_search.first_flags(grid, P, lower, upper)
         for (wa, wi), (ga, gi) in zip(want, got, strict=True):
             np.testing.assert_array_equal(ga, wa)
             np.testing.assert_array_equal(gi[wa], wi[wa])
@@ -80,15 +81,16 @@ def test_the_narrowest_band_inside_a_block_is_found():
     P, current, lower, upper = _edge_series()
     grid = np.linspace(current, current + 100_000.0, FORECAST_GRID_POINTS, axis=1)
     (_, _), (_, _), (late_any, late_first) = _full_grid(grid, P, lower, upper)
-    assert late_any[-1] and late_first[-1] % fr.FLAG_BLOCK not in (0, fr.FLAG_BLOCK - 1)
-    assert fr._first_flags(grid, P, lower, upper)[2][1][-1] == late_first[-1]
+    block = crossing_search.FLAG_BLOCK
+    assert late_any[-1] and late_first[-1] % block not in (0, block - 1)
+    assert crossing_search.first_flags(grid, P, lower, upper)[2][1][-1] == late_first[-1]
 
 
 def test_a_row_that_does_not_rise_is_evaluated_at_every_point():
     P, current, lower, upper = _edge_series()
     grid = np.linspace(current, current + 100_000.0, FORECAST_GRID_POINTS, axis=1)
     grid[2] = grid[2][::-1]  # falling: the block bounds would not hold, so none are used
-    want, got = _full_grid(grid, P, lower, upper), fr._first_flags(grid, P, lower, upper)
+    want, got = _full_grid(grid, P, lower, upper), crossing_search.first_flags(grid, P, lower, upper)
     for (wa, wi), (ga, gi) in zip(want, got, strict=True):
         np.testing.assert_array_equal(ga, wa)
         np.testing.assert_array_equal(gi[wa], wi[wa])
@@ -97,7 +99,7 @@ def test_a_row_that_does_not_rise_is_evaluated_at_every_point():
 def test_the_vectorised_crossings_are_the_core_s_forecast_crossing():
     rng = np.random.default_rng(11)
     P, current, lower, upper = _random_series(rng, 300)
-    early, likely, late, _ = fr.crossings(*P, current=current, lower=lower, upper=upper,
+    early, likely, late, _ = crossing_search.crossings(*P, current=current, lower=lower, upper=upper,
                                           horizon=np.full(current.size, 200_000.0))
     checked = 0
     for i in range(current.size):
@@ -141,26 +143,26 @@ def test_the_bounded_stiffness_search_gives_the_full_grid_s_crossings(link, monk
         k = np.asarray(k, dtype=float)
         return toe_change_for_link_stiffness(corner, force, link, k.ravel()).reshape(k.shape)
 
-    sign = fr.SignByStiffness(fn)
+    sign = stiffness_sign.SignByStiffness(fn)
     rng = np.random.default_rng(5)
     m = 600
     root = sign.root if sign.root is not None else 500.0
     # log stiffness lines from well above to well below the zero, and some that stay clear
-    f = fr.LineFits(slope=rng.normal(-4e-6, 4e-6, m), slope_se=np.abs(rng.normal(0, 1e-6, m)),
-                    slope_low=np.zeros(m), slope_high=np.zeros(m),
-                    x_ref=rng.uniform(0, 120_000, m), y_ref=np.log(root) + rng.normal(0, 1.5, m),
-                    residual_sd=np.abs(rng.normal(0, 0.1, m)), sxx=np.ones(m),
-                    n=rng.integers(2, 12, m), ok=np.ones(m, dtype=bool))
+    f = stacks.LineFits(slope=rng.normal(-4e-6, 4e-6, m), slope_se=np.abs(rng.normal(0, 1e-6, m)),
+                        slope_low=np.zeros(m), slope_high=np.zeros(m),
+                        x_ref=rng.uniform(0, 120_000, m), y_ref=np.log(root) + rng.normal(0, 1.5, m),
+                        residual_sd=np.abs(rng.normal(0, 0.1, m)), sxx=np.ones(m),
+                        n=rng.integers(2, 12, m), ok=np.ones(m, dtype=bool))
     gi = np.arange(m)
     cur = f.x_ref + rng.uniform(0, 40_000, m)
     evaluated = []
-    real = fr._scan_blocks
+    real = crossing_search.scan_blocks
 
     def spy(starts, ends, possible, evaluate):
         evaluated.append(int(possible[0].sum()))
         return real(starts, ends, possible, evaluate)
 
-    monkeypatch.setattr(fr, "_scan_blocks", spy)
+    monkeypatch.setattr(fr, "scan_blocks", spy)  # as the recompute imports it
     got = fr._stiffness_crossings(f, gi, sign, cur)
 
     grid = np.linspace(cur, cur + fr.HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
@@ -176,11 +178,11 @@ def test_the_bounded_stiffness_search_gives_the_full_grid_s_crossings(link, monk
                             np.where(which == 1, fl[:, c], fl.all(axis=1)))
         return test
 
-    want = fr._bisect_first(grid, firsts, make_test, cur)
+    want = crossing_search.bisect_first(grid, firsts, make_test, cur)
     for g, w in zip(got, want, strict=True):
         np.testing.assert_array_equal(g, w)
     assert all(a.any() and not a.all() for a, _ in firsts)  # failing and clear series alike
-    blocks = len(range(0, FORECAST_GRID_POINTS, fr.FLAG_BLOCK))
+    blocks = len(range(0, FORECAST_GRID_POINTS, crossing_search.FLAG_BLOCK))
     assert evaluated and evaluated[0] < m * blocks  # some blocks were ruled out
 
 

@@ -7,8 +7,9 @@ import math
 import pytest
 from django.db import connection
 
-from analytics import analysis, services
+from analytics import analysis, result_write, services
 from analytics import fleet_recompute as fr
+from analytics import platform_cache as pc
 from analytics.column_read import read_columns
 from analytics.demo import large_fleet, scenario
 from analytics.inputs import vehicle_data
@@ -213,29 +214,29 @@ def test_a_worker_s_platform_cache_is_rebuilt_when_a_spec_or_a_pooled_rate_chang
 
     _fleet()
     platform_id, _ids = fr.chunks()[0]
-    first = fr.platform_cache(platform_id)
-    assert fr.platform_cache(platform_id) is first  # nothing changed: kept
+    first = pc.platform_cache(platform_id)
+    assert pc.platform_cache(platform_id) is first  # nothing changed: kept
     spec = AlignmentSpec.objects.filter(platform_id=platform_id).first()
     spec.tolerance_deg += 0.01
     spec.save()
-    second = fr.platform_cache(platform_id)
+    second = pc.platform_cache(platform_id)
     assert second is not first
     assert second.specs[(spec.axle, spec.quantity)].tolerance_deg == spec.tolerance_deg
     PooledRate.objects.filter(platform_id=platform_id).update(mean=0.0)
-    assert fr.platform_cache(platform_id) is not second
+    assert pc.platform_cache(platform_id) is not second
 
 
 def test_warming_builds_each_platform_s_cache_once_and_respects_its_budget():
     from inspections.models import Platform
 
     _fleet()
-    fr._CACHES.clear()
-    assert fr.warm_caches() == Platform.objects.count()
-    cache = fr.platform_cache(fr.chunks()[0][0])
+    pc._CACHES.clear()
+    assert pc.warm_caches() == Platform.objects.count()
+    cache = pc.platform_cache(fr.chunks()[0][0])
     assert cache._toe_sign  # the rear criteria are built
-    assert fr.platform_cache(fr.chunks()[0][0]) is cache  # and kept for the jobs
-    fr._CACHES.clear()
-    assert fr.warm_caches(budget_s=-1.0) == 0  # no time: nothing warmed, nothing fails
+    assert pc.platform_cache(fr.chunks()[0][0]) is cache  # and kept for the jobs
+    pc._CACHES.clear()
+    assert pc.warm_caches(budget_s=-1.0) == 0  # no time: nothing warmed, nothing fails
 
 
 def test_a_vehicle_whose_odometer_goes_backwards_is_left_out_of_its_platform_s_pool():
@@ -346,10 +347,10 @@ def test_staged_result_lines_read_back_as_the_json_and_key_they_were_made_from()
         cur = dj.cursor
         cols = "vehicle_id bigint, input_key text, payload json, flips boolean"
         names = ("vehicle_id", "input_key", "payload", "flips")
-        fr._copy_staged(cur, "line_stage", cols, names, lines=(
-            fr._stage_line(v, k, fr._payload_json(p, b), f) for v, k, p, b, f in rows))
-        fr._copy_staged(cur, "row_stage", cols, names, rows=(
-            (v, k, fr._payload_json(p, b).decode(), f) for v, k, p, b, f in rows))
+        result_write.copy_staged(cur, "line_stage", cols, names, lines=(
+            result_write.stage_line(v, k, result_write.payload_json(p, b), f) for v, k, p, b, f in rows))
+        result_write.copy_staged(cur, "row_stage", cols, names, rows=(
+            (v, k, result_write.payload_json(p, b).decode(), f) for v, k, p, b, f in rows))
         cur.execute("SELECT vehicle_id, input_key, payload::text, flips FROM line_stage "
                     "ORDER BY vehicle_id")
         by_lines = cur.fetchall()
@@ -367,13 +368,13 @@ def test_a_staging_table_is_made_once_per_session_and_emptied_before_each_use():
     with connection.cursor() as dj:
         cur = dj.cursor
         cols, names = "k text, j json", ("k", "j")
-        fr._copy_staged(cur, "reuse_stage", cols, names, rows=[("a", "{}"), ("b", "[1]")])
+        result_write.copy_staged(cur, "reuse_stage", cols, names, rows=[("a", "{}"), ("b", "[1]")])
         cur.execute("SELECT 'reuse_stage'::regclass::oid, "
                     "(SELECT relpersistence FROM pg_class WHERE oid = 'reuse_stage'::regclass)")
         oid, persistence = cur.fetchone()
         cur.execute("SELECT k FROM reuse_stage ORDER BY k")
         assert cur.fetchall() == [("a",), ("b",)] and persistence == "t"
-        fr._copy_staged(cur, "reuse_stage", cols, names, rows=[("c", "2")])
+        result_write.copy_staged(cur, "reuse_stage", cols, names, rows=[("c", "2")])
         cur.execute("SELECT k, j::text FROM reuse_stage")
         assert cur.fetchall() == [("c", "2")]
         cur.execute("SELECT 'reuse_stage'::regclass::oid")

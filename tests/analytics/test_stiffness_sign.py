@@ -1,6 +1,6 @@
 """The stiffness → toe-out sign used by the fleet recompute is the corner engine's own sign.
 
-``analytics.fleet_recompute.SignByStiffness`` decides ``toe change < 0`` from a root found once
+``analytics.core.stiffness_sign.SignByStiffness`` decides ``toe change < 0`` from a root found once
 per platform corner and link; it must agree, element by element, with evaluating the exact
 function (``analytics.core.compliance.toe_change_for_link_stiffness``), including near the root
 and at stiffnesses so low that the function is no longer monotonic. No database.
@@ -10,7 +10,7 @@ import pytest
 
 from analytics.core.compliance import toe_change_for_link_stiffness
 from analytics.core.demo_corners import demo_corner
-from analytics.fleet_recompute import SignByStiffness
+from analytics.core.stiffness_sign import SignByStiffness
 
 FORCE = np.array([0.0, -3500.0, 0.0])  # N, inboard on a left outer rear wheel
 
