@@ -580,7 +580,7 @@ def main():
         + (f" (CPU: the recompute's worker + PostgreSQL {rc['cpu_s'] + rc['pg_s']:.0f} s, "
            f"{(rc['cpu_s'] + rc['pg_s']) / rc['raw_server_cpu']:.1f}× the raw read's)"
            if rc["raw_server_cpu"] else "")
-        + " | ≤ 60 s and ≤ 3× | {'yes' if rc['total_s'] <= 60 else 'no'} / "
+        + f" | ≤ 60 s and ≤ 3× | {'yes' if rc['total_s'] <= 60 else 'no'} / "
         f"{'yes' if rc['total_s'] <= 3 * rc['raw_s'] else 'no'} |",
         f"| bulk load of {imp['rows']:,} wheel readings (COPY → staging → validate → INSERT) | "
         f"{imp['bulk_s']:.2f} s | raw COPY FROM: {imp['raw_s']:.2f} s → "
