@@ -50,6 +50,7 @@ from analytics.core import advice as adv
 from analytics.core.advice import MODEL_VERSION
 from analytics.core.condition import LinkCondition
 from analytics.core.crossing_search import (
+    LinspaceGrid,
     band_terms,
     bisect_first,
     block_bounds,
@@ -1026,7 +1027,7 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
     rsd, n = f.residual_sd[gi], f.n[gi].astype(float)
     u = np.linspace(-1.0, 1.0, BAND_SAMPLES)
 
-    grid = np.linspace(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS, axis=1)
+    grid = LinspaceGrid(cur, cur + HORIZON_KM, FORECAST_GRID_POINTS)
     # a block can fail only where some sample's stiffness can be below zero: the samples lie
     # within exp(centre ± half-width), bounded per block (see block_bounds)
     starts, ends, c_min, c_max, _h_min, h_max, unbounded = block_bounds(

@@ -42,7 +42,70 @@ def band(x, slope, se, xref, yref, rsd, n):
 FLAG_BLOCK = 32
 
 
-def block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
+class LinspaceGrid:
+    """``np.linspace(start, stop, num, axis=1)`` — shape ``(m, num)`` — without building it: the
+    elements asked for are computed by numpy's own arithmetic for that call (numpy 2,
+    ``numpy/_core/function_base.py``: ``step = (stop − start) / (num − 1)``, element ``j`` is
+    ``j · step + start``, or ``(j / (num − 1)) · (stop − start) + start`` for every row when any
+    row's step is 0, and the last column is ``stop``), so they are equal to the built grid's,
+    element for element (tested against ``np.linspace``). The search below reads a few columns
+    of most rows, so building the whole grid (≈ 44 MB for a chunk's 10 800 drift series) cost
+    more than everything it was read for.
+
+    Indexing as the search uses an array: ``grid[:, cols]``, ``grid[rows, j0:j1]`` (shape
+    ``(len(rows), j1 − j0)``) and ``grid[rows, cols]`` with ``rows`` and ``cols`` of one
+    length (element by element)."""
+
+    def __init__(self, start, stop, num: int) -> None:
+        if num < 2:
+            raise ValueError("a grid needs at least two points")
+        self.start = np.asarray(start, dtype=float)
+        self.stop = np.asarray(stop, dtype=float)
+        self.num = num
+        self.shape = (self.start.size, num)
+        self.div = num - 1
+        with np.errstate(invalid="ignore", over="ignore"):  # NaN and inf pass, as in linspace
+            self.delta = np.subtract(self.stop, self.start)
+            self.step = self.delta / self.div
+        self.zero_step = bool(np.any(self.step == 0))
+
+    def _at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        j = cols.astype(float)
+        with np.errstate(invalid="ignore", over="ignore"):
+            v = (j / self.div * self.delta[rows] if self.zero_step else j * self.step[rows]) \
+                + self.start[rows]
+        return np.where(cols == self.num - 1, self.stop[rows], v)
+
+    def __getitem__(self, key) -> np.ndarray:
+        rows, cols = key
+        if isinstance(cols, slice):
+            cols = np.arange(*cols.indices(self.num))
+            rows = np.arange(self.shape[0]) if isinstance(rows, slice) else np.asarray(rows)
+            return self._at(rows[:, None], cols[None, :])
+        cols = np.asarray(cols)
+        if isinstance(rows, slice):
+            if rows != slice(None):
+                raise IndexError("rows: all (':') or an index array")
+            return self._at(np.arange(self.shape[0])[:, None], cols[None, :])
+        return self._at(np.asarray(rows), cols)
+
+
+def rising(grid) -> np.ndarray:
+    """Per row, whether the grid's values never decrease (``np.all(grid[:, 1:] >= grid[:, :-1],
+    axis=1)``), shape ``(m,)``. For a :class:`LinspaceGrid` from three columns: its elements
+    before the last are ``j · a + b`` (or ``(j / d) · a + b``) in ``j``, and correctly rounded
+    products and sums are monotonic, so they never decrease exactly when the second-to-last is
+    not below the first (equal ends of a non-increasing run make the run constant), and the
+    last column, ``stop``, must not be below the second-to-last; a NaN fails both (a row with
+    a NaN anywhere has one at its first element: finite ``start`` and ``step`` give none)."""
+    if isinstance(grid, LinspaceGrid):
+        m, g = grid.shape
+        ends = grid[:, np.array([0, g - 2, g - 1])]
+        return (ends[:, 1] >= ends[:, 0]) & (ends[:, 2] >= ends[:, 1])
+    return np.all(grid[:, 1:] >= grid[:, :-1], axis=1)
+
+
+def block_bounds(grid, slope, se, xref, yref, rsd, n):
     """Bounds of a band's centre and half-width over blocks of :data:`FLAG_BLOCK` grid columns:
     ``(starts, ends, c_min, c_max, h_min, h_max, unbounded)``, the bounds ``(m, blocks)``.
 
@@ -61,7 +124,7 @@ def block_bounds(grid: np.ndarray, slope, se, xref, yref, rsd, n):
     c1, h1 = centre_half(x1, *P)
     _, h_at_ref = centre_half(xref[:, None], *P)
     h_min = np.where((x0 <= xref[:, None]) & (x1 >= xref[:, None]), h_at_ref, np.minimum(h0, h1))
-    unbounded = ~np.all(grid[:, 1:] >= grid[:, :-1], axis=1)
+    unbounded = ~rising(grid)
     return (starts, ends, np.minimum(c0, c1), np.maximum(c0, c1), h_min, np.maximum(h0, h1),
             unbounded)
 
@@ -90,7 +153,7 @@ def scan_blocks(starts, ends, possible: list[np.ndarray], evaluate
     return list(zip(found, first, strict=True))
 
 
-def first_flags(grid: np.ndarray, P: tuple, lower: np.ndarray, upper: np.ndarray
+def first_flags(grid, P: tuple, lower: np.ndarray, upper: np.ndarray
                  ) -> list[tuple[np.ndarray, np.ndarray]]:
     """Per criterion (band edge out, centre out, whole band out): whether any grid point of a row
     is flagged and the first one that is — what ``flags.any(axis=1)`` and ``np.argmax(flags,
@@ -118,15 +181,16 @@ def first_flags(grid: np.ndarray, P: tuple, lower: np.ndarray, upper: np.ndarray
     return scan_blocks(starts, ends, possible, evaluate)
 
 
-def bisect_first(grid: np.ndarray, firsts: list[tuple[np.ndarray, np.ndarray]], make_test,
+def bisect_first(grid, firsts: list[tuple[np.ndarray, np.ndarray]], make_test,
                   cur: np.ndarray) -> list[np.ndarray]:
     """Per row and criterion: the first x where the criterion holds — the first grid point
     flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
     ``forecast_crossing``); ``cur`` where it holds at the first grid point, NaN where never.
 
     One bisection loop for every criterion and row at once; each element takes the same steps
-    as alone. ``grid``: ``(m, g)`` x values; ``firsts``: per criterion, ``(any flagged, first
-    flagged index)``, each ``(m,)`` (:func:`first_flags`, :func:`scan_blocks`);
+    as alone. ``grid``: ``(m, g)`` x values (an array or a :class:`LinspaceGrid`); ``firsts``:
+    per criterion, ``(any flagged, first flagged index)``, each ``(m,)`` (:func:`first_flags`,
+    :func:`scan_blocks`);
     ``make_test(rows, which)``: a function of ``x`` giving whether criterion ``which[j]`` holds
     for row ``rows[j]`` at ``x[j]`` (all shape ``(r,)``), called once per halving (the rows'
     parameters are gathered once, not at every halving). Returns one ``(m,)`` array per
@@ -174,7 +238,7 @@ def crossings(slope, se, xref, yref, rsd, n, *, current, lower, upper, horizon):
                             np.where(centre, (c > up) | (c < low), (lo > up) | (hi < low)))
         return test
 
-    grid = np.linspace(current, current + horizon, FORECAST_GRID_POINTS, axis=1)
+    grid = LinspaceGrid(current, current + horizon, FORECAST_GRID_POINTS)
     early, likely, late = bisect_first(grid, first_flags(grid, P, lower, upper), make_test,
                                         current)
     e = np.where(np.isfinite(early), early, current)

@@ -241,3 +241,41 @@ def test_forecasts_made_for_many_series_at_once_are_the_core_s_forecast_drift():
              for w, t in zip(want, tdays, strict=True)
              if w.early_date is not None and not np.isnan(t[0])]
     assert any(d < t for d, t in pairs) and any(d == t for d, t in pairs)
+
+
+def _grid_rows():
+    """Start and stop of grids as the search makes them (odometer readings and a horizon) and
+    edge cases: NaN and infinite ends, a stop below the start, a step lost in a huge start (a
+    constant grid), a tiny step, and an overflowing one."""
+    rng = np.random.default_rng(11)
+    start = np.concatenate([rng.uniform(0, 400_000, 300), rng.uniform(-5e3, 5e3, 50),
+                            [np.nan, 0.0, np.inf, -np.inf, 1.0, 1e20, 1e20, 5.0, 0.0, 1e-300,
+                             -1e308, 3.0]])
+    stop = np.concatenate([start[:300] + 100_000.0, start[300:350] + rng.uniform(1, 900, 50),
+                           [1.0, np.nan, 5.0, np.inf, -4.0, 1e20 - 5e-3, 1e20 + 1.0, 5.0 + 1e-12,
+                            1e308, 2e-300, 1e308, np.inf]])
+    return start, stop
+
+
+@pytest.mark.parametrize("with_zero_step", [False, True])
+def test_the_lazy_grid_is_numpys_linspace_element_for_element(with_zero_step):
+    # reference: numpy's own np.linspace(start, stop, num, axis=1) built in full
+    start, stop = _grid_rows()
+    with np.errstate(invalid="ignore", over="ignore"):
+        if not with_zero_step:  # a row with step 0 switches every row to numpy's other formula
+            keep = (stop - start) / (FORECAST_GRID_POINTS - 1) != 0
+            start, stop = start[keep], stop[keep]
+        full = np.linspace(start, stop, FORECAST_GRID_POINTS, axis=1)
+    lazy = crossing_search.LinspaceGrid(start, stop, FORECAST_GRID_POINTS)
+    assert lazy.zero_step is with_zero_step and lazy.shape == full.shape
+    cols = np.arange(FORECAST_GRID_POINTS)
+    np.testing.assert_array_equal(lazy[:, cols], full)  # NaN where numpy has NaN, bit for bit
+    rows = np.arange(full.shape[0])
+    rng = np.random.default_rng(3)
+    pick = rng.integers(0, FORECAST_GRID_POINTS, rows.size)
+    np.testing.assert_array_equal(lazy[rows, pick], full[rows, pick])
+    np.testing.assert_array_equal(lazy[rows[::7], 32:64], full[rows[::7], 32:64])
+    with np.errstate(invalid="ignore"):
+        want = np.all(full[:, 1:] >= full[:, :-1], axis=1)
+    np.testing.assert_array_equal(crossing_search.rising(lazy), want)
+    assert not want.all() and want.any()
