@@ -60,16 +60,22 @@ from analytics.core.crossing_search import (
     scan_blocks,
 )
 from analytics.core.drift import (
-    DEFAULT_CONFIDENCE,
     DRIFT_MODEL,
     FORECAST_GRID_POINTS,
     CrossingForecast,
-    _z,
     fit_drift,
     theil_sen_stack,
 )
 from analytics.core.load_cases import CORNERS
-from analytics.core.stacks import LineFits, decreasing_runs, line_fits, runs, stack, step_screen
+from analytics.core.stacks import (
+    Z95,
+    LineFits,
+    decreasing_runs,
+    line_fits,
+    runs,
+    stack,
+    step_screen,
+)
 from analytics.core.wear import (
     BAND_SAMPLES,
     NEED_TWO_PLAY_KM,
@@ -94,7 +100,6 @@ __all__ = ["CHUNK_VEHICLES", "ChunkStats", "chunks", "fleet_recompute", "recompu
 
 #: Vehicles per chunk: one Celery task; ≈ 0.1 GiB of frames at 100 readings per vehicle.
 CHUNK_VEHICLES: int = 1000
-Z95 = _z(DEFAULT_CONFIDENCE)
 EPOCH = dt.date(1970, 1, 1)
 TOE_OUT_LABEL = StiffnessCriterion.toe_out(np.asarray).label
 
@@ -1038,7 +1043,7 @@ def _stiffness_crossings(f: LineFits, gi: np.ndarray, below_zero, cur: np.ndarra
 
     def evaluate(rows, j0, j1):
         mid, half = centre_half(grid[rows, j0:j1],
-                                 *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
+                                *[p[rows, None] for p in (slope, se, xref, yref, rsd, n)])
         return below_zero.band_fails(mid, half, u)
 
     def make_test(rows, which):  # 0: any sample fails, 1: the centre fails, 2: every sample fails

@@ -65,7 +65,7 @@ _lz4: bool | None = None  # whether the server has lz4, asked once per process
 
 
 def copy_staged(cur, stage: str, columns_sql: str, columns: tuple[str, ...], rows=(),
-                 lines=None) -> None:
+                lines=None) -> None:
     """A temporary table ``stage`` filled with ``COPY`` from ``rows`` (tuples psycopg adapts) or
     ``lines`` (rows in COPY's text format, bytes each). Its JSON columns (``json``/``jsonb``)
     compress with lz4 where the server has it (see migrations 0007, 0009): staged values move
@@ -107,14 +107,14 @@ def _store_outcomes(cur, outcomes: dict[str, dict]) -> None:
     if not outcomes:
         return
     copy_staged(cur, "fleet_outcome_stage", "key text, entry jsonb", ("key", "entry"),
-                 ((k, _json(e)) for k, e in sorted(outcomes.items())))
+                ((k, _json(e)) for k, e in sorted(outcomes.items())))
     cur.execute('INSERT INTO "analytics_complianceoutcome" (key, entry, created_at) '
                 "SELECT key, entry, now() FROM fleet_outcome_stage ORDER BY key "
                 "ON CONFLICT (key) DO NOTHING")
 
 
 def write_results(platform_id: int, keys: dict[int, str], results: dict[int, tuple[dict, list]],
-           owner_of: dict[int, int | None]) -> int:
+                  owner_of: dict[int, int | None]) -> int:
     """Store results (once per input key) and their advice; returns results inserted.
     ``owner_of``: each vehicle's owner id (None: no owner, no owner report).
 
@@ -145,10 +145,10 @@ def write_results(platform_id: int, keys: dict[int, str], results: dict[int, tup
         cur = dj.cursor  # the psycopg cursor
         _store_outcomes(cur, outcomes)
         copy_staged(cur, "fleet_result_stage",
-                     "vehicle_id bigint, input_key text, payload json, flips boolean",
-                     ("vehicle_id", "input_key", "payload", "flips"),
-                     lines=(stage_line(v, keys[v], payload_json(stored[v], bodies[v]),
-                                        payload_flips(results[v][0])) for v in vids))
+                    "vehicle_id bigint, input_key text, payload json, flips boolean",
+                    ("vehicle_id", "input_key", "payload", "flips"),
+                    lines=(stage_line(v, keys[v], payload_json(stored[v], bodies[v]),
+                                      payload_flips(results[v][0])) for v in vids))
         cur.execute(RESULT_INSERT_SQL, [MODEL_VERSION])
         mine = {int(v): int(rid) for rid, v in cur.fetchall()}
         if not mine:

@@ -85,14 +85,8 @@ FLIP_FIGURES = {
     "rl_flip": ("RL", "flips_to_toe_out"), "rr_flip": ("RR", "flips_to_toe_out"),
 }
 #: The same figures as text, read in the database (the CSV export of every flipped result).
-FLIP_VALUES = {
-    "rl_new": KT("payload__compliance__RL__toe_change_new_deg"),
-    "rl_now": KT("payload__compliance__RL__toe_change_measured_deg"),
-    "rr_new": KT("payload__compliance__RR__toe_change_new_deg"),
-    "rr_now": KT("payload__compliance__RR__toe_change_measured_deg"),
-    "rl_flip": KT("payload__compliance__RL__flips_to_toe_out"),
-    "rr_flip": KT("payload__compliance__RR__flips_to_toe_out"),
-}
+FLIP_VALUES = {name: KT(f"payload__compliance__{pos}__{figure}")
+               for name, (pos, figure) in FLIP_FIGURES.items()}
 
 
 def toe_out_flips(user) -> QuerySet[AnalysisResult]:

@@ -10,10 +10,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from analytics.core.drift import DEFAULT_CONFIDENCE, FORECAST_GRID_POINTS, _z
+from analytics.core.drift import FORECAST_GRID_POINTS
+from analytics.core.stacks import Z95
 
 BISECTIONS = 40  # = analytics.core.drift.CROSSING_BISECTIONS
-Z95 = _z(DEFAULT_CONFIDENCE)
 
 
 def centre_half(x, slope, se, xref, yref, rsd, n):
@@ -130,7 +130,7 @@ def block_bounds(grid, slope, se, xref, yref, rsd, n):
 
 
 def scan_blocks(starts, ends, possible: list[np.ndarray], evaluate
-                 ) -> list[tuple[np.ndarray, np.ndarray]]:
+                ) -> list[tuple[np.ndarray, np.ndarray]]:
     """Each criterion's ``(any flagged, first flagged index)`` per row, evaluating only blocks
     where ``possible[c][row, block]``, in grid order, until each row's first flag is found.
     ``evaluate(rows, j0, j1)``: the exact flags of columns ``j0:j1`` of those rows, one
@@ -154,7 +154,7 @@ def scan_blocks(starts, ends, possible: list[np.ndarray], evaluate
 
 
 def first_flags(grid, P: tuple, lower: np.ndarray, upper: np.ndarray
-                 ) -> list[tuple[np.ndarray, np.ndarray]]:
+                ) -> list[tuple[np.ndarray, np.ndarray]]:
     """Per criterion (band edge out, centre out, whole band out): whether any grid point of a row
     is flagged and the first one that is — what ``flags.any(axis=1)`` and ``np.argmax(flags,
     axis=1)`` give on the full ``(m, g)`` grid of :func:`band`, without evaluating every point.
@@ -182,7 +182,7 @@ def first_flags(grid, P: tuple, lower: np.ndarray, upper: np.ndarray
 
 
 def bisect_first(grid, firsts: list[tuple[np.ndarray, np.ndarray]], make_test,
-                  cur: np.ndarray) -> list[np.ndarray]:
+                 cur: np.ndarray) -> list[np.ndarray]:
     """Per row and criterion: the first x where the criterion holds — the first grid point
     flagged, then ``BISECTIONS`` halvings of the grid cell before it (as the core's
     ``forecast_crossing``); ``cur`` where it holds at the first grid point, NaN where never.

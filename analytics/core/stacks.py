@@ -23,6 +23,8 @@ from analytics.core.drift import (
     theil_sen_stack,
 )
 
+#: The two-sided 95 % normal quantile of the core's prediction bands (one definition for the
+#: line fits here and the band crossings of :mod:`analytics.core.crossing_search`).
 Z95 = _z(DEFAULT_CONFIDENCE)
 
 
