@@ -299,7 +299,9 @@ def _idle_workers() -> bool:
 def _chunks_finished(count, expected: int, timeout: float = 1800) -> tuple[int, float]:
     """Wait until every vehicle has a result, or the workers are idle with the count unchanged
     (vehicles whose data the analysis refuses get none). Returns the results counted and the
-    ``time.perf_counter()`` at which the last of them was seen."""
+    ``time.perf_counter()`` at which the last of them was seen. Polled every 20 ms (a count of
+    at most 10 000 short rows, ≈ 1 ms of the server's time): the end is seen within ≈ 20 ms of
+    the last chunk's commit (at 0.2 s, ≈ 0.1 s late on average, ≈ 1 % of the recompute)."""
     deadline = time.perf_counter() + timeout
     last, last_change = -1, time.perf_counter()
     while time.perf_counter() < deadline:
@@ -310,7 +312,7 @@ def _chunks_finished(count, expected: int, timeout: float = 1800) -> tuple[int, 
             last, last_change = n, time.perf_counter()
         elif time.perf_counter() - last_change > 1.0 and _idle_workers():
             return n, last_change
-        time.sleep(0.2)
+        time.sleep(0.02)
     raise SystemExit("the chunk phase did not finish in time")
 
 
