@@ -300,8 +300,9 @@ def _chunks_finished(count, expected: int, timeout: float = 1800) -> tuple[int, 
     """Wait until every vehicle has a result, or the workers are idle with the count unchanged
     (vehicles whose data the analysis refuses get none). Returns the results counted and the
     ``time.perf_counter()`` at which the last of them was seen. Polled every 20 ms (a count of
-    at most 10 000 short rows, ≈ 1 ms of the server's time): the end is seen within ≈ 20 ms of
-    the last chunk's commit (at 0.2 s, ≈ 0.1 s late on average, ≈ 1 % of the recompute)."""
+    one short row per vehicle, ≈ 1 ms of the server's time for 10 000): the end is seen within
+    ≈ 20 ms of the last chunk's commit (at 0.2 s, ≈ 0.1 s late on average, ≈ 1 % of the
+    recompute)."""
     deadline = time.perf_counter() + timeout
     last, last_change = -1, time.perf_counter()
     while time.perf_counter() < deadline:
